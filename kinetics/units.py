@@ -303,7 +303,9 @@ def half_life_to_rate_per_s(half_life: Any, unit: str = "s") -> Any:
     with np.errstate(over="ignore", under="ignore"):
         k = np.asarray(np.log(2.0) / (t * factor), dtype=float)
     if not np.all(np.isfinite(k) & (k > 0.0)):
-        raise InputError("half-life is outside the range that gives a finite, positive rate constant")
+        raise InputError(
+            "half-life is outside the range that gives a finite, positive rate constant"
+        )
     return _out(k)
 
 
@@ -339,7 +341,9 @@ def rate_per_s_to_half_life(k_per_s: Any, unit: str = "s") -> Any:
     with np.errstate(over="ignore", under="ignore"):
         t = np.asarray(np.log(2.0) / k / factor, dtype=float)
     if not np.all(np.isfinite(t) & (t > 0.0)):
-        raise InputError("rate constant is outside the range that gives a finite, positive half-life")
+        raise InputError(
+            "rate constant is outside the range that gives a finite, positive half-life"
+        )
     return _out(t)
 
 
