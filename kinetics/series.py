@@ -1,0 +1,1189 @@
+r"""Fits of one concentration-time series: SFO, FOMC, DFOP and HS.
+
+The four models are the degradation-kinetics model set of FOCUS (2006)
+Guidance document on estimating persistence and degradation kinetics from
+environmental fate studies on pesticides in EU registration, Sanco/10058/2005
+v2.0 (cited below as "FOCUS 2006"). With :math:`C` the concentration at time
+:math:`t`:
+
+.. math::
+
+    \text{SFO:}\quad  C &= C_0 e^{-k t} \\
+    \text{FOMC:}\quad C &= \frac{C_0}{(t/\beta + 1)^{\alpha}} \\
+    \text{DFOP:}\quad C &= C_0 \left(g e^{-k_1 t} + (1-g) e^{-k_2 t}\right) \\
+    \text{HS:}\quad   C &= C_0 e^{-k_1 t} \ (t \le t_b), \quad
+                           C_0 e^{-k_1 t_b} e^{-k_2 (t - t_b)} \ (t > t_b)
+
+(FOCUS 2006, chapter 6). The concentrations themselves (not their
+logarithms) are fitted by weighted nonlinear least squares with analytic
+Jacobians; :func:`fit_series` documents the procedure, the error models, the
+limit-of-quantification rule and every reported statistic.
+
+:func:`fit_sfo_batch` fits many SFO series at once with a Levenberg-Marquardt
+iteration vectorised over the batch; it returns the same numbers as
+:func:`fit_series` with ``model="SFO"``.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any, Mapping, Sequence
+
+import numpy as np
+from scipy import stats
+from scipy.optimize import least_squares
+from scipy.special import expit
+
+from kinetics import units
+from kinetics._series_models import (
+    EXPONENTIAL_RISE,
+    MODELS,
+    natural_from_theta,
+    natural_gradient,
+)
+from kinetics.errors import ConvergenceError, DataError, IdentifiabilityError, InputError
+
+__all__ = [
+    "SERIES_MODELS",
+    "SERIES_METHODS",
+    "ERROR_MODELS",
+    "SeriesFit",
+    "SeriesInterval",
+    "fit_series",
+    "fit_sfo_batch",
+]
+
+SERIES_MODELS: tuple[str, ...] = ("SFO", "FOMC", "DFOP", "HS")
+SERIES_METHODS: tuple[str, ...] = ("nls", "loglinear")
+ERROR_MODELS: tuple[str, ...] = ("constant", "proportional")
+
+_LN2 = math.log(2.0)
+_LN10 = math.log(10.0)
+_CHI2_ALPHA = 0.05  # significance level of the FOCUS 2006 chi-square test
+_WEIGHT_FLOOR = 1e-9  # relative floor on fitted values used as proportional weights
+_IRLS_MAX = 200
+_IRLS_TOL = 1e-13
+_COND_LIMIT = 1e10  # condition number of the column-scaled Jacobian
+
+
+# ------------------------------------------------------------------ results
+@dataclass(frozen=True, eq=False)
+class SeriesInterval:
+    """Confidence intervals of one series fit at one confidence level.
+
+    All bounds are t-based with ``dof`` degrees of freedom. They are formed on
+    the scale on which each parameter was fitted (log for rates, times and
+    FOMC alpha; logit for DFOP g; linear for C0) and transformed back, so the
+    bounds of a positive parameter are positive.
+
+    Attributes
+    ----------
+    level : float
+        Two-sided confidence level, e.g. 0.95.
+    parameter_names : tuple of str
+        Names of the model parameters, as in :attr:`SeriesFit.parameter_names`.
+    low, high : numpy.ndarray
+        Lower and upper bounds of each parameter (natural scale, units as in
+        the parameter names; C0 in the concentration unit supplied).
+    k_low_per_s, k_high_per_s : float
+        Bounds of the (representative) first-order rate constant [1/s].
+    dt50_low_s, dt50_high_s, dt90_low_s, dt90_high_s : float
+        Bounds of DT50 and DT90 [s].
+    """
+
+    level: float
+    parameter_names: tuple[str, ...]
+    low: np.ndarray
+    high: np.ndarray
+    k_low_per_s: float
+    k_high_per_s: float
+    dt50_low_s: float
+    dt50_high_s: float
+    dt90_low_s: float
+    dt90_high_s: float
+
+    def as_dict(self) -> dict[str, tuple[float, float]]:
+        """``{parameter name: (low, high)}`` including k, DT50 and DT90."""
+        out = {n: (float(lo), float(hi)) for n, lo, hi in
+               zip(self.parameter_names, self.low, self.high)}
+        out["k_per_s"] = (self.k_low_per_s, self.k_high_per_s)
+        out["dt50_s"] = (self.dt50_low_s, self.dt50_high_s)
+        out["dt90_s"] = (self.dt90_low_s, self.dt90_high_s)
+        return out
+
+
+@dataclass(frozen=True, eq=False)
+class SeriesFit:
+    """Result of fitting one concentration-time series.
+
+    Attributes
+    ----------
+    model : str
+        One of :data:`SERIES_MODELS`.
+    method : str
+        ``"nls"`` or ``"loglinear"``.
+    error_model : str
+        ``"constant"`` or ``"proportional"``.
+    parameter_names : tuple of str
+        SFO ``("C0", "k_per_s")``; FOMC ``("C0", "alpha", "beta_s")``; DFOP
+        ``("C0", "k1_per_s", "k2_per_s", "g")`` with ``k1_per_s >= k2_per_s``;
+        HS ``("C0", "k1_per_s", "k2_per_s", "tb_s")``. C0 is in the unit of the
+        concentrations supplied; rates [1/s]; times [s].
+    estimates : numpy.ndarray
+        Parameter estimates on the natural scale.
+    covariance : numpy.ndarray
+        Covariance of ``estimates`` (delta method from the fitted scale).
+    standard_errors : numpy.ndarray
+        Square roots of the diagonal of ``covariance``.
+    dof : int
+        Residual degrees of freedom ``n_points - n_parameters``.
+    time_s : numpy.ndarray
+        Sampling times used in the fit, sorted [s].
+    concentration : numpy.ndarray
+        Concentrations used in the fit, after the limit-of-quantification rule.
+    fitted : numpy.ndarray
+        Model concentrations at ``time_s``.
+    residuals : numpy.ndarray
+        ``concentration - fitted``.
+    k_per_s : float
+        SFO: k. Other models: the representative rate ``ln 2 / DT50`` [1/s].
+    se_ln_k : float
+        Standard error of ``ln k_per_s`` (equal to that of ``ln dt50_s``).
+    se_ln_dt90 : float
+        Standard error of ``ln dt90_s``.
+    dt50_s, dt90_s : float
+        Times to 50 % and 90 % loss [s].
+    chi2_error_level_percent : float
+        FOCUS 2006 chi-square error level [%] (see :func:`fit_series`).
+    chi2_dof : int
+        Degrees of freedom of that test: sampling times minus parameters.
+    aic, aicc : float or None
+        Akaike information criterion and its small-sample correction from the
+        Gaussian likelihood, counting the model parameters plus the residual
+        scale sigma. ``aicc`` is None when ``n_points <= n_parameters + 2``
+        (the correction is undefined).
+    rss : float
+        Weighted residual sum of squares that was minimised (for
+        ``method="loglinear"`` it is on ln C).
+    residual_scale : float
+        Estimated sigma: in concentration units for ``"constant"``, a relative
+        error (fraction of the fitted value) for ``"proportional"``, and on ln C
+        for ``"loglinear"``.
+    n_points : int
+        Number of points used in the fit.
+    p_rate_positive : dict
+        One-sided t-test p-value of the hypothesis that each rate parameter is
+        zero against the alternative that it is > 0 (small = significantly
+        positive).
+    n_below_loq_set : int
+        Points flagged below the LOQ that were used at LOQ/2.
+    n_below_loq_dropped : int
+        Points flagged below the LOQ that were dropped.
+    """
+
+    model: str
+    method: str
+    error_model: str
+    parameter_names: tuple[str, ...]
+    estimates: np.ndarray
+    covariance: np.ndarray
+    standard_errors: np.ndarray
+    dof: int
+    time_s: np.ndarray
+    concentration: np.ndarray
+    fitted: np.ndarray
+    residuals: np.ndarray
+    k_per_s: float
+    se_ln_k: float
+    se_ln_dt90: float
+    dt50_s: float
+    dt90_s: float
+    chi2_error_level_percent: float
+    chi2_dof: int
+    aic: float
+    aicc: float | None
+    rss: float
+    residual_scale: float
+    n_points: int
+    p_rate_positive: Mapping[str, float]
+    n_below_loq_set: int = 0
+    n_below_loq_dropped: int = 0
+    # fitted-scale parameters and their kinds, used by interval() and fitted_at()
+    _theta: np.ndarray = field(default=None, repr=False)
+    _theta_covariance: np.ndarray = field(default=None, repr=False)
+    _kinds: tuple[str, ...] = field(default=(), repr=False)
+
+    @property
+    def parameters(self) -> dict[str, float]:
+        """``{name: estimate}`` on the natural scale."""
+        return {n: float(v) for n, v in zip(self.parameter_names, self.estimates)}
+
+    def interval(self, level: float = 0.95) -> SeriesInterval:
+        """t-based confidence intervals at ``level`` (two-sided).
+
+        .. math::
+
+            \\hat\\theta_j \\pm t_{1-(1-\\text{level})/2,\\ \\text{dof}}\\,
+            \\mathrm{se}(\\hat\\theta_j)
+
+        on the fitted scale of each parameter, transformed back; for k, DT50
+        and DT90 on the log scale with :attr:`se_ln_k` and :attr:`se_ln_dt90`.
+
+        Parameters
+        ----------
+        level : float
+            Confidence level, strictly between 0 and 1.
+
+        Returns
+        -------
+        SeriesInterval
+        """
+        try:
+            lvl = float(level)
+        except (TypeError, ValueError):
+            raise InputError(f"confidence level must be a number between 0 and 1, got {level!r}")
+        if not 0.0 < lvl < 1.0:
+            raise InputError(f"confidence level must be strictly between 0 and 1, got {level!r}")
+        q = float(stats.t.ppf(0.5 + lvl / 2.0, self.dof))
+        se = np.sqrt(np.diag(self._theta_covariance))
+        lo_th, hi_th = self._theta - q * se, self._theta + q * se
+        low = np.empty_like(self.estimates)
+        high = np.empty_like(self.estimates)
+        for i, kind in enumerate(self._kinds):
+            if kind == "negated_log_rate":  # log-linear slope b = -k
+                low[i], high[i] = -hi_th[i], -lo_th[i]
+            elif kind == "log_amplitude":  # log-linear intercept a = ln C0
+                low[i], high[i] = math.exp(lo_th[i]), math.exp(hi_th[i])
+            elif kind == "amplitude":
+                low[i], high[i] = lo_th[i], hi_th[i]
+            elif kind == "logit":
+                low[i], high[i] = expit(lo_th[i]), expit(hi_th[i])
+            else:
+                low[i], high[i] = math.exp(lo_th[i]), math.exp(hi_th[i])
+        if self.method == "loglinear":
+            # exact OLS interval of the slope; DT bounds follow from k bounds
+            k_lo, k_hi = float(low[1]), float(high[1])
+            if k_lo <= 0.0:
+                k_lo = self.k_per_s * math.exp(-q * self.se_ln_k)
+        else:
+            k_lo = self.k_per_s * math.exp(-q * self.se_ln_k)
+            k_hi = self.k_per_s * math.exp(q * self.se_ln_k)
+        return SeriesInterval(
+            level=lvl,
+            parameter_names=self.parameter_names,
+            low=_frozen(low),
+            high=_frozen(high),
+            k_low_per_s=k_lo,
+            k_high_per_s=k_hi,
+            dt50_low_s=self.dt50_s * self.k_per_s / k_hi,
+            dt50_high_s=self.dt50_s * self.k_per_s / k_lo,
+            dt90_low_s=self.dt90_s * math.exp(-q * self.se_ln_dt90),
+            dt90_high_s=self.dt90_s * math.exp(q * self.se_ln_dt90),
+        )
+
+    def fitted_at(self, time_s: Any) -> np.ndarray:
+        """Model concentration at ``time_s`` [s] (unit of the data supplied)."""
+        t = np.asarray(time_s, dtype=float)
+        if not np.all(np.isfinite(t)) or np.any(t < 0):
+            raise InputError(f"times must be finite and >= 0 s, got {time_s!r}")
+        if self.method == "loglinear":
+            return self.estimates[0] * np.exp(-self.estimates[1] * t)
+        return MODELS[self.model].predict(self._theta, np.atleast_1d(t)).reshape(t.shape)
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-safe summary (no private fields)."""
+        return {
+            "model": self.model,
+            "method": self.method,
+            "error_model": self.error_model,
+            "parameters": self.parameters,
+            "standard_errors": {n: float(v) for n, v in
+                                zip(self.parameter_names, self.standard_errors)},
+            "covariance": self.covariance.tolist(),
+            "dof": self.dof,
+            "k_per_s": self.k_per_s,
+            "se_ln_k": self.se_ln_k,
+            "dt50_s": self.dt50_s,
+            "dt90_s": self.dt90_s,
+            "chi2_error_level_percent": self.chi2_error_level_percent,
+            "chi2_dof": self.chi2_dof,
+            "aic": self.aic,
+            "aicc": self.aicc,
+            "rss": self.rss,
+            "residual_scale": self.residual_scale,
+            "n_points": self.n_points,
+            "p_rate_positive": dict(self.p_rate_positive),
+            "n_below_loq_set": self.n_below_loq_set,
+            "n_below_loq_dropped": self.n_below_loq_dropped,
+            "time_s": self.time_s.tolist(),
+            "concentration": self.concentration.tolist(),
+            "fitted": self.fitted.tolist(),
+        }
+
+
+def _frozen(a: np.ndarray) -> np.ndarray:
+    a = np.array(a, dtype=float)
+    a.setflags(write=False)
+    return a
+
+
+# ------------------------------------------------------------ input checks
+def _choice(value: Any, valid: tuple[str, ...], what: str) -> str:
+    if not isinstance(value, str) or value not in valid:
+        raise InputError(f"unknown {what} {value!r}; valid choices are {', '.join(valid)}")
+    return value
+
+
+def _float_vector(values: Any, name: str) -> np.ndarray:
+    try:
+        arr = np.asarray(values, dtype=float)
+    except (TypeError, ValueError):
+        raise DataError(f"{name} must be a sequence of numbers, got {values!r}")
+    if arr.ndim != 1:
+        raise DataError(f"{name} must be a one-dimensional sequence of numbers, "
+                        f"got an array of shape {arr.shape}")
+    return arr
+
+
+def _fmt(x: float) -> str:
+    return f"{x:.6g}"
+
+
+@dataclass(frozen=True)
+class _Prepared:
+    t_s: np.ndarray        # sorted times [s]
+    y: np.ndarray          # concentrations, LOQ rule applied
+    time_unit: str
+    unit_factor: float     # seconds per time unit, for messages
+    n_set: int
+    n_dropped: int
+
+
+def _prepare(time: Any, concentration: Any, time_unit: str, n_parameters: int,
+             model: str, loq: Any = None, below_loq: Any = None) -> _Prepared:
+    """Validate one series, apply the LOQ rule and sort by time."""
+    t = _float_vector(time, "time")
+    c = _float_vector(concentration, "concentration")
+    if t.size != c.size:
+        raise DataError(f"time has {t.size} values but concentration has {c.size}; give one "
+                        "concentration per sample (replicates repeat their sampling time)")
+    if t.size == 0:
+        raise DataError("the series is empty: no time and concentration values were given")
+    factor = float(units.time_to_s(1.0, time_unit))
+    bad = ~np.isfinite(t)
+    if bad.any():
+        i = int(np.argmax(bad))
+        raise DataError(f"time[{i}] = {t[i]!r} is not a finite number")
+    if (t < 0).any():
+        i = int(np.argmax(t < 0))
+        raise DataError(f"time[{i}] = {_fmt(t[i])} {time_unit} is negative; times are "
+                        "counted from the start of the incubation")
+
+    flags = np.zeros(t.size, dtype=bool)
+    if below_loq is not None:
+        flags = np.asarray(below_loq)
+        if flags.dtype != bool or flags.ndim != 1:
+            raise DataError(f"below_loq must be a one-dimensional sequence of True/False, "
+                            f"got {below_loq!r}")
+        if flags.size != t.size:
+            raise DataError(f"below_loq has {flags.size} values but the series has {t.size} "
+                            "samples; give one flag per sample")
+    loq_value = None
+    if loq is not None:
+        try:
+            loq_value = float(loq)
+        except (TypeError, ValueError):
+            raise DataError(f"loq must be a number (concentration unit of the data), got {loq!r}")
+        if not math.isfinite(loq_value) or loq_value <= 0:
+            raise DataError(f"loq = {loq!r} must be a finite concentration > 0")
+        if below_loq is None:
+            flags = np.isfinite(c) & (c < loq_value)
+    if flags.any() and loq_value is None:
+        raise DataError(f"{int(flags.sum())} sample(s) are flagged below the LOQ but no loq "
+                        "value was given; pass loq= in the concentration unit of the data")
+
+    quantified = ~flags
+    bad = quantified & ~np.isfinite(c)
+    if bad.any():
+        i = int(np.argmax(bad))
+        raise DataError(f"concentration[{i}] = {c[i]!r} at {_fmt(t[i])} {time_unit} is not a "
+                        "finite number; flag values below the LOQ with below_loq instead")
+    neg = quantified & (c < 0)
+    if neg.any():
+        i = int(np.argmax(neg))
+        raise DataError(f"concentration[{i}] = {_fmt(c[i])} at {_fmt(t[i])} {time_unit} is "
+                        "negative; concentrations must be >= 0 (flag values below the LOQ "
+                        "with below_loq)")
+
+    order = np.argsort(t, kind="stable")
+    t, c, flags = t[order], c[order], flags[order]
+    n_set = n_dropped = 0
+    if flags.any():
+        c = c.copy()
+        # a sampling time is "trailing" when every sample at it and after it is flagged
+        ut, inv = np.unique(t, return_inverse=True)
+        all_flagged = np.ones(ut.size, dtype=bool)
+        np.logical_and.at(all_flagged, inv, flags)
+        trailing = np.flip(np.logical_and.accumulate(np.flip(all_flagged)))
+        first_trailing = int(np.argmax(trailing)) if trailing.any() else ut.size
+        keep = np.ones(t.size, dtype=bool)
+        drop = flags & (inv > first_trailing)
+        keep[drop] = False
+        n_dropped = int(drop.sum())
+        setv = flags & ~drop
+        c[setv] = loq_value / 2.0
+        n_set = int(setv.sum())
+        t, c = t[keep], c[keep]
+
+    ut = np.unique(t)
+    if ut.size < 2:
+        raise DataError(f"all {t.size} samples were taken at one time ({_fmt(ut[0])} "
+                        f"{time_unit}); a rate needs samples at several times")
+    if ut.size < n_parameters + 1:
+        raise DataError(f"model {model} has {n_parameters} parameters and needs samples at "
+                        f"{n_parameters + 1} or more different times; this series has "
+                        f"{ut.size} ({', '.join(_fmt(x) for x in ut)} {time_unit})")
+    if np.all(c == c[0]):
+        if c[0] == 0:
+            raise DataError("all concentrations are 0; there is nothing to fit")
+        raise DataError(f"all concentrations equal {_fmt(c[0])}; a constant series shows no "
+                        "decline and gives no rate")
+    pos = c > 0
+    if np.unique(t[pos]).size < 2:
+        raise DataError("concentrations are above 0 at only one sampling time "
+                        f"({_fmt(t[pos][0])} {time_unit}); the decline is too fast for "
+                        "the sampling times and no rate can be estimated")
+    slope = _ols_slope(t[pos], np.log(c[pos]))
+    if slope >= 0:
+        m0 = float(c[t == ut[0]].mean())
+        m1 = float(c[t == ut[-1]].mean())
+        raise DataError(
+            f"the concentrations do not decline: ln(concentration) rises by {_fmt(slope)} "
+            f"per {time_unit} (mean {_fmt(m0)} at {_fmt(ut[0])} {time_unit}, {_fmt(m1)} at "
+            f"{_fmt(ut[-1])} {time_unit}); a degradation model needs a declining series")
+    return _Prepared(t * factor, c, time_unit, factor, n_set, n_dropped)
+
+
+def _ols_slope(x: np.ndarray, y: np.ndarray) -> float:
+    xm = x - x.mean()
+    return float(np.dot(xm, y - y.mean()) / np.dot(xm, xm))
+
+
+# ------------------------------------------------------------- the engine
+@dataclass(frozen=True, eq=False)
+class _EngineResult:
+    theta: np.ndarray              # fitted-scale parameters (original units)
+    theta_covariance: np.ndarray
+    estimates: np.ndarray          # natural scale
+    covariance: np.ndarray
+    standard_errors: np.ndarray
+    fitted: np.ndarray
+    weights: np.ndarray
+    rss: float                     # weighted
+    dof: int
+    sigma2: float
+
+
+def _to_scaled(theta: np.ndarray, kinds: tuple[str, ...], tscale: float,
+               yscale: float) -> np.ndarray:
+    """Parameters of the problem with time / tscale and concentration / yscale."""
+    out = np.array(theta, dtype=float)
+    for i, kind in enumerate(kinds):
+        if kind == "amplitude":
+            out[i] = theta[i] / yscale
+        elif kind == "log_rate":
+            out[i] = theta[i] + math.log(tscale)
+        elif kind == "log_time":
+            out[i] = theta[i] - math.log(tscale)
+    return out
+
+
+def _from_scaled(theta: np.ndarray, kinds: tuple[str, ...], tscale: float,
+                 yscale: float) -> np.ndarray:
+    out = np.array(theta, dtype=float)
+    for i, kind in enumerate(kinds):
+        if kind == "amplitude":
+            out[i] = theta[i] * yscale
+        elif kind == "log_rate":
+            out[i] = theta[i] - math.log(tscale)
+        elif kind == "log_time":
+            out[i] = theta[i] + math.log(tscale)
+    return out
+
+
+def _weights(fitted: np.ndarray, error_model: str) -> np.ndarray:
+    """Least-squares weights: 1 (constant) or 1 / fitted^2 (proportional)."""
+    if error_model == "constant":
+        return np.ones_like(fitted)
+    floor = _WEIGHT_FLOOR * float(np.max(np.abs(fitted)))
+    return 1.0 / np.maximum(np.abs(fitted), floor) ** 2
+
+
+def _gauss_newton_polish(model, theta, t, y, w, steps=3):
+    """A few undamped Gauss-Newton steps at fixed weights (tightens convergence)."""
+    sw = np.sqrt(w)
+    obj = float(np.sum(w * (y - model.predict(theta, t)) ** 2))
+    for _ in range(steps):
+        jac = model.jacobian(theta, t) * sw[:, None]
+        r = (y - model.predict(theta, t)) * sw
+        step, *_ = np.linalg.lstsq(jac, r, rcond=None)
+        cand = theta + step
+        f = model.predict(cand, t)
+        if not np.all(np.isfinite(f)):
+            break
+        new = float(np.sum(w * (y - f) ** 2))
+        if new > obj * (1.0 + 1e-12) + 1e-300:
+            break
+        theta, obj = cand, new
+        if np.max(np.abs(step)) < 1e-15:
+            break
+    return theta
+
+
+def _solve_scaled(model, theta0, t, y, error_model):
+    """Minimise on the rescaled problem; returns (theta, weighted objective)."""
+    with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
+        theta = np.asarray(theta0, dtype=float)
+        f0 = model.predict(theta, t)
+        if not np.all(np.isfinite(f0)):
+            raise ConvergenceError(f"{model.name}: the starting values give non-finite "
+                                   "model concentrations")
+        w = _weights(f0, error_model) if error_model == "proportional" else np.ones_like(y)
+        for _ in range(_IRLS_MAX):
+            sw = np.sqrt(w)
+
+            def fun(th, sw=sw):
+                return (model.predict(th, t) - y) * sw
+
+            def jac(th, sw=sw):
+                return model.jacobian(th, t) * sw[:, None]
+
+            try:
+                res = least_squares(fun, theta, jac=jac, method="lm", xtol=1e-15,
+                                    ftol=1e-15, gtol=1e-15, max_nfev=2000 * (theta.size + 1))
+            except (ValueError, np.linalg.LinAlgError) as exc:
+                raise ConvergenceError(f"{model.name}: the optimiser failed ({exc})") from None
+            if res.status <= 0 or not np.all(np.isfinite(res.x)):
+                raise ConvergenceError(f"{model.name}: the optimiser did not converge "
+                                       f"({res.message})")
+            new = _gauss_newton_polish(model, res.x, t, y, w)
+            if error_model == "constant":
+                theta = new
+                break
+            change = float(np.max(np.abs(new - theta)))
+            theta = new
+            w = _weights(model.predict(theta, t), error_model)
+            if change < _IRLS_TOL:
+                break
+        else:
+            raise ConvergenceError(f"{model.name}: the reweighting for proportional errors did "
+                                   f"not settle in {_IRLS_MAX} iterations")
+        f = model.predict(theta, t)
+        if not np.all(np.isfinite(f)):
+            raise ConvergenceError(f"{model.name}: the fit ended at non-finite concentrations")
+        obj = float(np.sum(w * (y - f) ** 2))
+    return theta, obj
+
+
+def _covariance(model, theta, t, y, error_model, kinds, *, name=None):
+    """Statistics at the optimum on the original scale."""
+    name = name or model.name
+    fitted = model.predict(theta, t)
+    w = _weights(fitted, error_model)
+    jac = model.jacobian(theta, t)
+    sw = np.sqrt(w)
+    a = jac * sw[:, None]
+    n, p = a.shape
+    dof = n - p
+    rss = float(np.sum(w * (y - fitted) ** 2))
+    sigma2 = rss / dof
+    norms = np.linalg.norm(a, axis=0)
+    if np.any(norms == 0) or not np.all(np.isfinite(a)):
+        raise IdentifiabilityError(f"{name}: at the fitted parameters the model does not "
+                                   "depend on one of them; the data cannot characterise it")
+    sv = np.linalg.svd(a / norms, compute_uv=False)
+    if sv[-1] <= 0 or sv[0] / sv[-1] > _COND_LIMIT:
+        raise IdentifiabilityError(f"{name}: the parameters cannot be told apart by these data "
+                                   f"(condition number {_fmt(sv[0] / max(sv[-1], 1e-300))}); "
+                                   "try a model with fewer parameters")
+    # (J^T W J)^-1 through the QR factor of the column-scaled weighted Jacobian
+    _, r = np.linalg.qr(a / norms)
+    rinv = np.linalg.solve(r, np.eye(p))
+    inv = (rinv @ rinv.T) / np.outer(norms, norms)
+    theta_cov = sigma2 * inv
+    g = natural_gradient(theta, kinds)
+    nat = natural_from_theta(theta, kinds)
+    cov = theta_cov * np.outer(g, g)
+    se = np.sqrt(np.maximum(np.diag(cov), 0.0))
+    return _EngineResult(theta, theta_cov, nat, cov, se, fitted, w, rss, dof, sigma2)
+
+
+def _amplitude_projection(model, theta, t, y):
+    r"""Replace the starting amplitude by its least-squares value given the rest.
+
+    The amplitude (C0, or b1 of a rising curve) enters every model linearly, so
+    for fixed other parameters its best value is :math:`\sum f_1 y / \sum f_1^2`
+    with :math:`f_1` the model at unit amplitude. Starting there keeps the
+    optimiser away from the far-off shallow regions a poor amplitude leads to.
+    """
+    unit = np.array(theta, dtype=float)
+    unit[0] = 1.0
+    with np.errstate(over="ignore", under="ignore", invalid="ignore"):
+        f1 = model.predict(unit, t)
+        den = float(np.dot(f1, f1))
+        amp = float(np.dot(f1, y)) / den if den > 0 else float("nan")
+    if math.isfinite(amp) and amp > 0:
+        unit[0] = amp
+        return unit
+    return np.array(theta, dtype=float)
+
+
+def _fit_engine(model, t, y, starts, error_model):
+    """Best of several starts; statistics on the original scale."""
+    tscale = float(np.max(t))
+    yscale = float(np.max(np.abs(y)))
+    ts, ys = t / tscale, y / yscale
+    best = None
+    failure = None
+    for start in starts:
+        th0 = _amplitude_projection(model, _to_scaled(start, model.kinds, tscale, yscale), ts, ys)
+        try:
+            th, obj = _solve_scaled(model, th0, ts, ys, error_model)
+        except ConvergenceError as exc:
+            failure = exc
+            continue
+        if best is None or obj < best[1]:
+            best = (th, obj)
+    if best is None:
+        raise failure if failure is not None else ConvergenceError(
+            f"{model.name}: no starting values were available")
+    theta = _from_scaled(best[0], model.kinds, tscale, yscale)
+    return theta
+
+
+# -------------------------------------------------------- FOCUS statistics
+def _chi2_error_level(t: np.ndarray, y: np.ndarray, fitted: np.ndarray,
+                      n_parameters: int) -> tuple[float, int]:
+    r"""FOCUS 2006 chi-square error level [%] on the means at each sampling time.
+
+    The smallest error percentage at which the model passes the chi-square test
+    at :math:`\alpha = 0.05` (FOCUS 2006, section 7.2.2):
+
+    .. math::
+
+        \chi^2 = \sum_i \frac{(C_i - O_i)^2}{(\frac{err}{100}\,\bar O)^2}
+        = \chi^2_{1-\alpha}(m - p)
+        \quad\Longrightarrow\quad
+        err = \frac{100}{\bar O}\sqrt{\frac{\sum_i (C_i - O_i)^2}
+                                           {\chi^2_{1-\alpha}(m - p)}}
+
+    with :math:`O_i` the mean observation and :math:`C_i` the model value at
+    sampling time i, :math:`\bar O` the mean of all :math:`O_i`, m the number of
+    sampling times and p the number of model parameters.
+    """
+    ut, inv = np.unique(t, return_inverse=True)
+    counts = np.bincount(inv)
+    obs = np.bincount(inv, weights=y) / counts
+    calc = np.bincount(inv, weights=fitted) / counts
+    dof = int(ut.size - n_parameters)
+    q = float(stats.chi2.ppf(1.0 - _CHI2_ALPHA, dof))
+    err = 100.0 / float(np.mean(obs)) * math.sqrt(float(np.sum((calc - obs) ** 2)) / q)
+    return err, dof
+
+
+def _information_criteria(n: int, p: int, rss: float, weights: np.ndarray,
+                          scale_sum_sq: float) -> tuple[float, float | None]:
+    r"""AIC and AICc from the Gaussian likelihood at the ML sigma.
+
+    With :math:`\sigma_i = \sigma / \sqrt{w_i}` and
+    :math:`\hat\sigma^2 = \mathrm{RSS}_w / n`,
+
+    .. math::
+
+        \ln L = -\frac{n}{2}\left(\ln(2\pi\hat\sigma^2) + 1\right)
+                + \frac12 \sum_i \ln w_i,\quad
+        \mathrm{AIC} = 2K - 2\ln L,\quad
+        \mathrm{AICc} = \mathrm{AIC} + \frac{2K(K+1)}{n-K-1}
+
+    with K = p + 1 (the model parameters and sigma); Burnham and Anderson (2002)
+    Model selection and multimodel inference, 2nd ed., Springer, section 2.4.
+    An exact fit is treated as having residuals at rounding level.
+    """
+    rss_floor = max(rss, np.finfo(float).eps ** 2 * scale_sum_sq, np.finfo(float).tiny)
+    s2 = rss_floor / n
+    log_l = -0.5 * n * (math.log(2.0 * math.pi * s2) + 1.0) + 0.5 * float(np.sum(np.log(weights)))
+    k = p + 1
+    aic = 2.0 * k - 2.0 * log_l
+    aicc = aic + 2.0 * k * (k + 1) / (n - k - 1) if n - k - 1 > 0 else None
+    return aic, aicc
+
+
+def _p_positive(estimate: float, se: float, dof: int) -> float:
+    """One-sided t-test p-value for H0: parameter = 0 against > 0 (FOCUS 2006, 7.2.3)."""
+    if se <= 0.0:
+        return 0.0
+    return float(stats.t.sf(estimate / se, dof))
+
+
+# ---------------------------------------------------------------- fitting
+def fit_series(time: Any, concentration: Any, *, time_unit: str = "d", model: str = "SFO",
+               method: str = "nls", error_model: str = "constant", loq: float | None = None,
+               below_loq: Any = None) -> SeriesFit:
+    r"""Fit one concentration-time series with SFO, FOMC, DFOP or HS.
+
+    Parameters
+    ----------
+    time : array_like
+        Sampling times [``time_unit``], >= 0, in any order; replicates repeat
+        their sampling time.
+    concentration : array_like
+        Concentrations, in any one consistent unit or as % of the initial
+        amount (the fit is scale-free; C0 comes back in the same unit). Values
+        flagged in ``below_loq`` are ignored and may be NaN.
+    time_unit : {"s", "min", "h", "d"}
+        Unit of ``time`` (converted by :func:`kinetics.units.time_to_s`).
+    model : {"SFO", "FOMC", "DFOP", "HS"}
+        Kinetic model (FOCUS 2006, chapter 6; equations in the module
+        docstring).
+    method : {"nls", "loglinear"}
+        ``"nls"``: nonlinear least squares on the concentrations. ``"loglinear"``
+        (SFO only): ordinary least squares of ln C on t,
+        :math:`\ln C = \ln C_0 - k t`; every concentration must then be > 0.
+    error_model : {"constant", "proportional"}
+        ``"constant"``: the same standard deviation at every point (unweighted
+        least squares). ``"proportional"``: standard deviation proportional to
+        the model value, fitted by iteratively reweighted least squares with
+        weights :math:`1/\hat C_i^2` recomputed from the current fit until the
+        estimates stop changing (fitted values below 1e-9 of the largest are
+        floored when forming weights). ``"loglinear"`` accepts only
+        ``"constant"`` (constant variance of ln C).
+    loq : float, optional
+        Limit of quantification, in the concentration unit of the data.
+    below_loq : array_like of bool, optional
+        True for each sample reported below the LOQ. If ``loq`` is given and
+        ``below_loq`` is not, samples with concentration < ``loq`` are flagged.
+
+    Returns
+    -------
+    SeriesFit
+
+    Notes
+    -----
+    **Limit of quantification rule** (common practice, no single source). The
+    samples are ordered by time. A sampling time is *trailing* when all its
+    samples and all later samples are flagged below the LOQ. Flagged samples
+    at the first trailing time are used at LOQ/2; flagged samples at later
+    trailing times are dropped (the decline has ended below the LOQ and more
+    points at LOQ/2 would fake a plateau); flagged samples before the first
+    trailing time (followed by quantified values) are used at LOQ/2.
+
+    **Fitting.** Rate constants, FOMC alpha and beta and the HS breakpoint are
+    fitted as logarithms and the DFOP fraction g through its logit, so no bounds
+    are needed; the Jacobians are analytic. Starting values come from the
+    log-linear SFO fit of the positive values; FOMC, DFOP and HS are started
+    from several points derived from it and the best fit is kept. The optimiser
+    (:func:`scipy.optimize.least_squares`, Levenberg-Marquardt) works on times
+    divided by the last sampling time and concentrations divided by the largest
+    value; the result is refined by a few Gauss-Newton steps. DFOP is reported
+    with :math:`k_1 \ge k_2`.
+
+    **Covariance.** :math:`\mathrm{cov}(\hat\theta) = s^2 (J^T W J)^{-1}` with
+    :math:`s^2 = \sum_i w_i r_i^2 / (n - p)` on the fitted scale, transformed to
+    the natural scale by the delta method. ``se_ln_k`` is the standard error of
+    ln k for SFO and of ln DT50 otherwise (the two coincide since
+    :math:`k = \ln 2 / DT_{50}`).
+
+    **DT50 and DT90** (FOCUS 2006, chapter 6):
+
+    .. math::
+
+        \text{SFO: } DT_x = \frac{\ln\frac{1}{1-x}}{k}, \qquad
+        \text{FOMC: } DT_x = \beta\left((1-x)^{-1/\alpha} - 1\right)
+
+    so :math:`DT_{50} = \ln 2 / k`, :math:`DT_{90} = \ln 10 / k` for SFO and
+    :math:`DT_{50} = \beta(2^{1/\alpha} - 1)` for FOMC. HS: :math:`DT_x =
+    \ln\frac{1}{1-x}/k_1` if that is at most :math:`t_b`, else
+    :math:`t_b + (\ln\frac{1}{1-x} - k_1 t_b)/k_2`. DFOP has no closed form; the
+    root of :math:`g e^{-k_1 t} + (1-g) e^{-k_2 t} = 1 - x` is bracketed by
+    :math:`\ln\frac{1}{1-x}/k_1` and :math:`\ln\frac{1}{1-x}/k_2` and found with
+    :func:`scipy.optimize.brentq`; its gradient comes from implicit
+    differentiation.
+
+    **Diagnostics.** ``chi2_error_level_percent`` per FOCUS 2006 (section 7.2.2,
+    means of replicates at each sampling time); AIC and AICc from the Gaussian
+    likelihood with K = number of model parameters + 1 (sigma);
+    ``p_rate_positive`` from a one-sided t-test with ``dof`` degrees of freedom
+    on the natural-scale estimate and standard error of each rate parameter
+    (FOCUS 2006, section 7.2.3): SFO k; FOMC alpha and beta; DFOP and HS k1 and
+    k2.
+
+    Raises
+    ------
+    DataError
+        Mismatched lengths, an empty series, non-finite or negative values,
+        samples at a single time, fewer sampling times than parameters + 1,
+        all values equal, or no decline.
+    InputError
+        Unknown model, method or error model, or an invalid combination.
+    UnitError
+        Unknown ``time_unit``.
+    ConvergenceError
+        The optimiser failed from every starting point.
+    IdentifiabilityError
+        The data cannot separate the parameters of the chosen model (e.g. a
+        DFOP or HS fit of data that show one phase).
+    """
+    model = _choice(model, SERIES_MODELS, "model")
+    method = _choice(method, SERIES_METHODS, "method")
+    error_model = _choice(error_model, ERROR_MODELS, "error model")
+    if method == "loglinear" and model != "SFO":
+        raise InputError(f"method 'loglinear' is only defined for model 'SFO', not {model!r}")
+    if method == "loglinear" and error_model != "constant":
+        raise InputError("method 'loglinear' assumes a constant variance of ln C; use "
+                         "error_model='constant' with it, or method='nls' for proportional errors")
+    spec = MODELS[model]
+    prep = _prepare(time, concentration, time_unit, spec.n_parameters, model, loq, below_loq)
+    if method == "loglinear":
+        return _fit_loglinear(prep)
+    sfo_start = _loglinear_start(prep.t_s, prep.y)
+    starts = spec.starts(prep.t_s, prep.y, sfo_start)
+    theta = _fit_engine(spec, prep.t_s, prep.y, starts, error_model)
+    return _build_fit(spec, theta, prep, error_model)
+
+
+def _loglinear_start(t: np.ndarray, y: np.ndarray) -> np.ndarray:
+    """SFO starting values [C0, ln k] from OLS of ln C on t over positive values."""
+    pos = y > 0
+    slope = _ols_slope(t[pos], np.log(y[pos]))
+    intercept = float(np.mean(np.log(y[pos])) - slope * np.mean(t[pos]))
+    return np.array([math.exp(intercept), math.log(-slope)])
+
+
+def _canonical_dfop(theta: np.ndarray) -> np.ndarray:
+    """Order the DFOP phases so that k1 >= k2."""
+    if theta[1] < theta[2]:
+        return np.array([theta[0], theta[2], theta[1], -theta[3]])
+    return theta
+
+
+def _build_fit(spec, theta, prep: _Prepared, error_model: str) -> SeriesFit:
+    t, y = prep.t_s, prep.y
+    if spec.name == "DFOP":
+        theta = _canonical_dfop(theta)
+        g = float(expit(theta[3]))
+        if not 1e-8 < g < 1.0 - 1e-8 or theta[1] - theta[2] < 1e-6:
+            raise IdentifiabilityError(
+                f"DFOP: the data support only one phase (g = {_fmt(g)}, k1/k2 = "
+                f"{_fmt(math.exp(theta[1] - theta[2]))}); fit SFO or FOMC instead")
+    if spec.name == "HS":
+        tb = math.exp(theta[3])
+        if not t[0] < tb < t[-1]:
+            raise IdentifiabilityError(
+                f"HS: the fitted breakpoint {_fmt(tb / prep.unit_factor)} {prep.time_unit} lies "
+                f"outside the sampled period ({_fmt(t[0] / prep.unit_factor)}-"
+                f"{_fmt(t[-1] / prep.unit_factor)} {prep.time_unit}); fit SFO instead")
+    with np.errstate(over="ignore", under="ignore"):
+        eng = _covariance(spec, theta, t, y, error_model, spec.kinds)
+        dt50 = float(spec.dtx(theta, 0.5))
+        dt90 = float(spec.dtx(theta, 0.9))
+        g50 = spec.dtx_log_gradient(theta, 0.5)
+        g90 = spec.dtx_log_gradient(theta, 0.9)
+    se_ln_k = math.sqrt(max(float(g50 @ eng.theta_covariance @ g50), 0.0))
+    se_ln_dt90 = math.sqrt(max(float(g90 @ eng.theta_covariance @ g90), 0.0))
+    k = float(math.exp(theta[1])) if spec.name == "SFO" else _LN2 / dt50
+    return _assemble(spec.name, "nls", error_model, spec.parameter_names, eng, prep, k, se_ln_k,
+                     se_ln_dt90, dt50, dt90, spec.rate_parameters, spec.kinds)
+
+
+def _assemble(model, method, error_model, names, eng: _EngineResult, prep: _Prepared, k,
+              se_ln_k, se_ln_dt90, dt50, dt90, rate_names, kinds,
+              chi2=None, aic_pair=None) -> SeriesFit:
+    t, y = prep.t_s, prep.y
+    n, p = y.size, len(names)
+    if chi2 is None:
+        chi2 = _chi2_error_level(t, y, eng.fitted, p)
+    if aic_pair is None:
+        aic_pair = _information_criteria(n, p, eng.rss, eng.weights,
+                                         float(np.sum(eng.weights * y ** 2)))
+    p_pos = {nm: _p_positive(float(eng.estimates[i]), float(eng.standard_errors[i]), eng.dof)
+             for i, nm in enumerate(names) if nm in rate_names}
+    values = [dt50, dt90, k, se_ln_k, se_ln_dt90, chi2[0], aic_pair[0], eng.rss]
+    if not all(math.isfinite(v) for v in values) or not np.all(np.isfinite(eng.covariance)):
+        raise ConvergenceError(f"{model}: the fit produced non-finite statistics; the data "
+                               "do not support this model")
+    return SeriesFit(
+        model=model,
+        method=method,
+        error_model=error_model,
+        parameter_names=tuple(names),
+        estimates=_frozen(eng.estimates),
+        covariance=_frozen(eng.covariance),
+        standard_errors=_frozen(eng.standard_errors),
+        dof=int(eng.dof),
+        time_s=_frozen(t),
+        concentration=_frozen(y),
+        fitted=_frozen(eng.fitted),
+        residuals=_frozen(y - eng.fitted),
+        k_per_s=float(k),
+        se_ln_k=float(se_ln_k),
+        se_ln_dt90=float(se_ln_dt90),
+        dt50_s=float(dt50),
+        dt90_s=float(dt90),
+        chi2_error_level_percent=float(chi2[0]),
+        chi2_dof=int(chi2[1]),
+        aic=float(aic_pair[0]),
+        aicc=None if aic_pair[1] is None else float(aic_pair[1]),
+        rss=float(eng.rss),
+        residual_scale=math.sqrt(eng.sigma2),
+        n_points=int(n),
+        p_rate_positive=p_pos,
+        n_below_loq_set=prep.n_set,
+        n_below_loq_dropped=prep.n_dropped,
+        _theta=_frozen(eng.theta),
+        _theta_covariance=_frozen(eng.theta_covariance),
+        _kinds=tuple(kinds),
+    )
+
+
+def _fit_loglinear(prep: _Prepared) -> SeriesFit:
+    """SFO by ordinary least squares of ln C on t."""
+    t, y = prep.t_s, prep.y
+    if np.any(y <= 0):
+        i = int(np.argmax(y <= 0))
+        raise DataError(f"method 'loglinear' needs every concentration > 0, but the value at "
+                        f"{_fmt(t[i] / prep.unit_factor)} {prep.time_unit} is {_fmt(y[i])}; "
+                        "use method='nls'")
+    n = y.size
+    ly = np.log(y)
+    x = np.column_stack((np.ones(n), t))
+    coef, *_ = np.linalg.lstsq(x, ly, rcond=None)
+    a, b = float(coef[0]), float(coef[1])
+    resid = ly - x @ coef
+    dof = n - 2
+    rss = float(resid @ resid)
+    s2 = rss / dof
+    xtx_inv = np.linalg.inv(x.T @ x)
+    theta_cov = s2 * xtx_inv
+    c0, k = math.exp(a), -b
+    g = np.array([c0, -1.0])
+    cov = theta_cov * np.outer(g, g)
+    se = np.sqrt(np.diag(cov))
+    fitted = c0 * np.exp(-k * t)
+    eng = _EngineResult(np.array([a, b]), theta_cov, np.array([c0, k]), cov, se, fitted,
+                        np.ones(n), rss, dof, s2)
+    se_ln_k = float(se[1] / k)
+    # the likelihood of ln C, expressed for C (Jacobian of the log transform: 1/C)
+    aic, aicc = _information_criteria(n, 2, rss, np.ones(n), float(ly @ ly))
+    aic += 2.0 * float(np.sum(ly))
+    if aicc is not None:
+        aicc += 2.0 * float(np.sum(ly))
+    chi2 = _chi2_error_level(t, y, fitted, 2)
+    return _assemble("SFO", "loglinear", "constant", MODELS["SFO"].parameter_names, eng, prep, k,
+                     se_ln_k, se_ln_k, _LN2 / k, _LN10 / k, ("k_per_s",),
+                     ("log_amplitude", "negated_log_rate"), chi2=chi2, aic_pair=(aic, aicc))
+
+
+# ------------------------------------------------------- exponential rise
+def _fit_exponential_rise(x: Any, y: Any, start: Sequence[float]) -> _EngineResult:
+    """Fit y = b1 (1 - exp(-b2 x)) with the series least-squares engine.
+
+    The same machinery as :func:`fit_series` (rate in log space, analytic
+    Jacobian, rescaled problem, Levenberg-Marquardt plus Gauss-Newton
+    refinement, covariance ``s^2 (J^T J)^-1``), exposed for checking the engine
+    against certified nonlinear-regression results. ``start`` = (b1, b2), b2 > 0.
+    """
+    xv = _float_vector(x, "x")
+    yv = _float_vector(y, "y")
+    if xv.size != yv.size or xv.size < 3:
+        raise DataError(f"x and y must have the same length >= 3, got {xv.size} and {yv.size}")
+    b1, b2 = (float(v) for v in start)
+    if not b2 > 0:
+        raise InputError(f"the starting rate b2 must be > 0, got {b2!r}")
+    theta = _fit_engine(EXPONENTIAL_RISE, xv, yv, [np.array([b1, math.log(b2)])], "constant")
+    return _covariance(EXPONENTIAL_RISE, theta, xv, yv, "constant", EXPONENTIAL_RISE.kinds)
+
+
+# ----------------------------------------------------------- batch of SFO
+def fit_sfo_batch(series: Sequence[Sequence[Any]], *, time_unit: str = "d",
+                  error_model: str = "constant") -> list[SeriesFit]:
+    r"""Fit SFO to many series at once (vectorised Levenberg-Marquardt).
+
+    Each series is fitted exactly as :func:`fit_series` with ``model="SFO"``,
+    ``method="nls"`` would fit it (same checks, starting values, rescaling,
+    reweighting for proportional errors and statistics), but the iterations run
+    on all series together as numpy arrays, with no per-series solver call.
+
+    Parameters
+    ----------
+    series : sequence of (time, concentration) pairs
+        Each pair as accepted by :func:`fit_series` (times in ``time_unit``).
+    time_unit : {"s", "min", "h", "d"}
+        Unit of every time array.
+    error_model : {"constant", "proportional"}
+        As in :func:`fit_series`.
+
+    Returns
+    -------
+    list of SeriesFit
+        One per series, in order.
+
+    Raises
+    ------
+    DataError
+        If any series is invalid; the message names the series index.
+    ConvergenceError
+        If the iteration fails for a series.
+    """
+    error_model = _choice(error_model, ERROR_MODELS, "error model")
+    spec = MODELS["SFO"]
+    preps = []
+    for i, item in enumerate(series):
+        try:
+            tt, cc = item
+        except (TypeError, ValueError):
+            raise DataError(f"series[{i}] must be a (time, concentration) pair")
+        try:
+            preps.append(_prepare(tt, cc, time_unit, 2, "SFO"))
+        except DataError as exc:
+            raise DataError(f"series[{i}]: {exc}") from None
+    if not preps:
+        return []
+    b = len(preps)
+    m = max(p.y.size for p in preps)
+    ts = np.zeros((b, m))
+    ys = np.zeros((b, m))
+    mask = np.zeros((b, m))
+    tscale = np.empty(b)
+    yscale = np.empty(b)
+    for i, p in enumerate(preps):
+        nn = p.y.size
+        tscale[i] = p.t_s[-1]
+        yscale[i] = np.max(np.abs(p.y))
+        ts[i, :nn] = p.t_s / tscale[i]
+        ys[i, :nn] = p.y / yscale[i]
+        mask[i, :nn] = 1.0
+    with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
+        theta = _batch_loglinear_start(ts, ys, mask)
+        # amplitude projection, as in _amplitude_projection
+        e1 = np.exp(-np.exp(theta[:, 1])[:, None] * ts) * mask
+        amp = np.sum(e1 * ys, axis=1) / np.sum(e1 * e1, axis=1)
+        theta[:, 0] = np.where(np.isfinite(amp) & (amp > 0), amp, theta[:, 0])
+        theta = _batch_solve(theta, ts, ys, mask, error_model)
+    fits = []
+    for i, p in enumerate(preps):
+        th = _from_scaled(theta[i], spec.kinds, tscale[i], yscale[i])
+        fits.append(_build_fit(spec, th, p, error_model))
+    return fits
+
+
+def _batch_loglinear_start(ts, ys, mask):
+    """Vectorised OLS of ln C on t over positive values, as in _loglinear_start."""
+    pos = mask * (ys > 0)
+    ly = np.where(ys > 0, np.log(np.where(ys > 0, ys, 1.0)), 0.0)
+    npos = pos.sum(axis=1)
+    tm = (pos * ts).sum(axis=1) / npos
+    lm = (pos * ly).sum(axis=1) / npos
+    dt = (ts - tm[:, None]) * pos
+    slope = (dt * (ly - lm[:, None])).sum(axis=1) / (dt * dt).sum(axis=1)
+    intercept = lm - slope * tm
+    return np.column_stack((np.exp(intercept), np.log(-slope)))
+
+
+def _batch_model(theta, ts):
+    k = np.exp(theta[:, 1])[:, None]
+    e = np.exp(-k * ts)
+    f = theta[:, 0][:, None] * e
+    return f, e, k
+
+
+def _batch_weights(f, mask, error_model):
+    if error_model == "constant":
+        return mask.copy()
+    fmax = np.max(np.abs(f) * mask, axis=1, keepdims=True)
+    return mask / np.maximum(np.abs(f), _WEIGHT_FLOOR * fmax) ** 2
+
+
+def _batch_lm(theta, ts, ys, w, max_iter=500):
+    """Levenberg-Marquardt on every series at fixed weights, then Gauss-Newton polish."""
+    b = theta.shape[0]
+    lam = np.full(b, 1e-3)
+    active = np.ones(b, dtype=bool)
+    f, e, k = _batch_model(theta, ts)
+    obj = np.sum(w * (ys - f) ** 2, axis=1)
+    for _ in range(max_iter):
+        if not active.any():
+            break
+        j0 = e
+        j1 = -f * k * ts
+        r = ys - f
+        a00 = np.sum(w * j0 * j0, axis=1)
+        a01 = np.sum(w * j0 * j1, axis=1)
+        a11 = np.sum(w * j1 * j1, axis=1)
+        g0 = np.sum(w * j0 * r, axis=1)
+        g1 = np.sum(w * j1 * r, axis=1)
+        d00 = a00 * (1.0 + lam)
+        d11 = a11 * (1.0 + lam)
+        det = d00 * d11 - a01 * a01
+        s0 = (d11 * g0 - a01 * g1) / det
+        s1 = (d00 * g1 - a01 * g0) / det
+        step = np.column_stack((s0, s1))
+        step[~active] = 0.0
+        cand = theta + step
+        fc, ec, kc = _batch_model(cand, ts)
+        objc = np.sum(w * (ys - fc) ** 2, axis=1)
+        ok = active & np.isfinite(objc) & (objc <= obj)
+        gain = np.where(ok, obj - objc, np.inf)
+        theta = np.where(ok[:, None], cand, theta)
+        obj = np.where(ok, objc, obj)
+        lam = np.where(ok, lam / 10.0, lam * 10.0)
+        small = np.max(np.abs(step), axis=1) <= 1e-15 * (1.0 + np.max(np.abs(theta), axis=1))
+        flat = ok & (gain <= 1e-16 * obj)
+        active &= ~((ok & small) | flat | (lam > 1e16))
+        f, e, k = _batch_model(theta, ts)
+    # Gauss-Newton polish, as in _gauss_newton_polish
+    for _ in range(3):
+        f, e, k = _batch_model(theta, ts)
+        j0 = e
+        j1 = -f * k * ts
+        r = ys - f
+        a00 = np.sum(w * j0 * j0, axis=1)
+        a01 = np.sum(w * j0 * j1, axis=1)
+        a11 = np.sum(w * j1 * j1, axis=1)
+        g0 = np.sum(w * j0 * r, axis=1)
+        g1 = np.sum(w * j1 * r, axis=1)
+        det = a00 * a11 - a01 * a01
+        step = np.column_stack(((a11 * g0 - a01 * g1) / det, (a00 * g1 - a01 * g0) / det))
+        cand = theta + step
+        fc, _, _ = _batch_model(cand, ts)
+        objc = np.sum(w * (ys - fc) ** 2, axis=1)
+        ok = np.isfinite(objc) & (objc <= obj * (1.0 + 1e-12) + 1e-300)
+        theta = np.where(ok[:, None], cand, theta)
+        obj = np.where(ok, objc, obj)
+    return theta
+
+
+def _batch_solve(theta, ts, ys, mask, error_model):
+    if not np.all(np.isfinite(theta)):
+        bad = int(np.argmax(~np.all(np.isfinite(theta), axis=1)))
+        raise ConvergenceError(f"series[{bad}]: no finite SFO starting values")
+    f, _, _ = _batch_model(theta, ts)
+    w = _batch_weights(f, mask, error_model)
+    for _ in range(_IRLS_MAX):
+        new = _batch_lm(theta, ts, ys, w)
+        if error_model == "constant":
+            theta = new
+            break
+        change = np.max(np.abs(new - theta))
+        theta = new
+        f, _, _ = _batch_model(theta, ts)
+        w = _batch_weights(f, mask, error_model)
+        if change < _IRLS_TOL:
+            break
+    else:
+        raise ConvergenceError(f"SFO batch: the reweighting for proportional errors did not "
+                               f"settle in {_IRLS_MAX} iterations")
+    if not np.all(np.isfinite(theta)):
+        bad = int(np.argmax(~np.all(np.isfinite(theta), axis=1)))
+        raise ConvergenceError(f"series[{bad}]: the SFO iteration ended at non-finite values")
+    return theta
