@@ -63,6 +63,7 @@ __all__ = [
     "water_dielectric_constant",
     "pKw",
     "pKw_pure_water",
+    "PKW_FORMULATIONS",
     "pKw_seawater",
     "seawater_density_kg_m3",
     "debye_huckel_A",
@@ -208,8 +209,20 @@ def water_dielectric_constant(temperature_K: Any) -> Any:
     return _out(87.740 + t * (-0.40008 + t * (9.398e-4 + t * (-1.410e-6))))
 
 
-def pKw_pure_water(temperature_K: Any) -> Any:
-    """Ion product of pure liquid water at 0.1 MPa, IAPWS R11-07.
+#: Ion-product formulations of pure water: the Bandura-Lvov equation with the
+#: coefficients of IAPWS R11-07 (2007) or of its 2024 revision.
+PKW_FORMULATIONS: tuple[str, ...] = ("R11-07", "R11-24")
+
+# alpha0, alpha1 [K], alpha2 [K^2 (g/cm3)^-2/3], beta0 [(g/cm3)^-1],
+# beta1 [K (g/cm3)^-1], beta2 [(g/cm3)^-2]
+_BANDURA_LVOV: dict[str, tuple[float, float, float, float, float, float]] = {
+    "R11-07": (-0.864671, 8659.19, -22786.2, 0.642044, -56.8534, -0.375754),
+    "R11-24": (-0.702132, 8681.05, -24145.1, 0.813876, -51.4471, -0.469920),
+}
+
+
+def pKw_pure_water(temperature_K: Any, formulation: str = "R11-07") -> Any:
+    """Ion product of pure liquid water at 0.1 MPa (IAPWS, Bandura-Lvov equation).
 
     The Bandura-Lvov equation, with density :math:`\\rho` in g/cm³ from
     :func:`water_density_kg_m3` and :math:`T` in K:
@@ -225,36 +238,63 @@ def pKw_pure_water(temperature_K: Any) -> Any:
         \\mathrm{p}K_w^G = 0.61415 + 48251.33\\,T^{-1} - 67707.93\\,T^{-2}
             + 10102100\\,T^{-3}
 
-    with :math:`n = 6`, :math:`\\alpha_0 = -0.702132`, :math:`\\alpha_1 = 8681.05`,
+    with :math:`n = 6` and :math:`M_w = 18.015268` g/mol. ``"R11-07"`` (the
+    default) uses the coefficients of Bandura & Lvov (2006) adopted in IAPWS
+    R11-07: :math:`\\alpha_0 = -0.864671`, :math:`\\alpha_1 = 8659.19`,
+    :math:`\\alpha_2 = -22786.2`, :math:`\\beta_0 = 0.642044`,
+    :math:`\\beta_1 = -56.8534`, :math:`\\beta_2 = -0.375754`. ``"R11-24"``
+    uses the refitted coefficients of the 2024 revision of the release (based on
+    Arcis et al. 2020): :math:`\\alpha_0 = -0.702132`, :math:`\\alpha_1 = 8681.05`,
     :math:`\\alpha_2 = -24145.1`, :math:`\\beta_0 = 0.813876`,
-    :math:`\\beta_1 = -51.4471`, :math:`\\beta_2 = -0.469920` and
-    :math:`M_w = 18.015268` g/mol.
+    :math:`\\beta_1 = -51.4471`, :math:`\\beta_2 = -0.469920`. Between 0 and
+    100 °C at 0.1 MPa the two differ by at most 0.002 in pKw.
 
     References: IAPWS R11-07, "Release on the Ionization Constant of H2O"
     (2007); A. V. Bandura and S. N. Lvov, "The ionization constant of water over
     wide ranges of temperature and density", J. Phys. Chem. Ref. Data 35 (2006)
-    15-30.
+    15-30; IAPWS R11-24, "Revised Release on the Ionization Constant of H2O"
+    (2024); H. Arcis, J. P. Ferguson, J. S. Cox and P. R. Tremaine, J. Phys.
+    Chem. Ref. Data 49 (2020) 033103.
 
     Parameters
     ----------
     temperature_K : array_like
         Temperature [K], 273.15-373.15.
+    formulation : {"R11-07", "R11-24"}, optional
+        Coefficient set.
 
     Returns
     -------
     numpy.float64 or numpy.ndarray
         :math:`\\mathrm{p}K_w = -\\log_{10} K_w`, with :math:`K_w` the product of the
         molal activities of H+ and OH- [(mol/kg H2O)²].
+
+    Raises
+    ------
+    InputError
+        For an unknown ``formulation`` or a temperature outside 273.15-373.15 K.
     """
+    coefficients = _bandura_lvov_coefficients(formulation)
     T = _pure_water_temperature(temperature_K)
     rho = np.asarray(water_density_kg_m3(T)) / 1000.0  # g/cm3
-    return _out(_bandura_lvov_pKw(rho, T))
+    return _out(_bandura_lvov_pKw(rho, T, coefficients))
 
 
-def _bandura_lvov_pKw(rho_g_cm3: np.ndarray, T: np.ndarray) -> np.ndarray:
+def _bandura_lvov_coefficients(formulation: Any) -> tuple[float, ...]:
+    try:
+        return _BANDURA_LVOV[formulation]
+    except (KeyError, TypeError):
+        raise InputError(
+            f"unknown pKw formulation {formulation!r}; valid: {', '.join(PKW_FORMULATIONS)}"
+        ) from None
+
+
+def _bandura_lvov_pKw(
+    rho_g_cm3: np.ndarray, T: np.ndarray, coefficients: tuple[float, ...]
+) -> np.ndarray:
+    """Bandura-Lvov pKw at density [g/cm3] and temperature [K] (no range checks)."""
     n = 6.0
-    a0, a1, a2 = -0.702132, 8681.05, -24145.1
-    b0, b1, b2 = 0.813876, -51.4471, -0.469920
+    a0, a1, a2, b0, b1, b2 = coefficients
     q = rho_g_cm3 * np.exp(a0 + a1 / T + a2 / T**2 * rho_g_cm3 ** (2.0 / 3.0))
     pkw_gas = 0.61415 + 48251.33 / T - 67707.93 / T**2 + 10102100.0 / T**3
     return (
@@ -311,7 +351,7 @@ def _millero_ln_kw(T: np.ndarray, S: np.ndarray) -> np.ndarray:
     )
 
 
-def pKw(temperature_K: Any, salinity: Any = 0.0) -> Any:
+def pKw(temperature_K: Any, salinity: Any = 0.0, *, formulation: str = "R11-07") -> Any:
     """Ion product of water: pure water where ``salinity == 0``, seawater otherwise.
 
     Where ``salinity`` is 0 this is :func:`pKw_pure_water` (IAPWS R11-07 at
@@ -319,7 +359,7 @@ def pKw(temperature_K: Any, salinity: Any = 0.0) -> Any:
     > 0 it is :func:`pKw_seawater` (Millero 1995, stoichiometric product on the
     total scale in mol/kg-solution, 0-45 °C). See the module docstring for the
     pH scales. As S -> 0 the seawater value tends to 14.001 at 25 °C against
-    13.994 for pure water: the two correlations differ by less than 0.01.
+    13.995 for pure water: the two correlations differ by less than 0.01.
 
     Parameters
     ----------
@@ -327,6 +367,8 @@ def pKw(temperature_K: Any, salinity: Any = 0.0) -> Any:
         Temperature [K].
     salinity : array_like, optional
         Practical salinity, 0-45; broadcast against ``temperature_K``.
+    formulation : {"R11-07", "R11-24"}, optional
+        Pure-water coefficient set, see :func:`pKw_pure_water`.
 
     Returns
     -------
@@ -339,6 +381,7 @@ def pKw(temperature_K: Any, salinity: Any = 0.0) -> Any:
         If a value is not finite or outside the range of the correlation used
         for it.
     """
+    _bandura_lvov_coefficients(formulation)
     T = as_float_array(temperature_K, "temperature_K")
     S = _salinity(salinity)
     try:
@@ -351,7 +394,7 @@ def pKw(temperature_K: Any, salinity: Any = 0.0) -> Any:
     result = np.empty(T.shape, dtype=float)
     fresh = S == 0.0
     if np.any(fresh):
-        result[fresh] = pKw_pure_water(T[fresh])
+        result[fresh] = pKw_pure_water(T[fresh], formulation)
     if np.any(~fresh):
         result[~fresh] = pKw_seawater(T[~fresh], S[~fresh])
     return _out(result)
