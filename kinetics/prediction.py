@@ -1,0 +1,449 @@
+"""Field predictions from a fitted rate surface.
+
+:func:`predict` evaluates a :class:`kinetics.surface.SurfaceFit` at arrays of
+field conditions (temperature, pH, ionic strength or salinity, broadcast
+together) and returns the rate constant, DT50 and DT90 with two intervals:
+
+* the **confidence interval** of the mean rate at that condition (what the
+  surface says, with the uncertainty of its parameters), and
+* the **prediction interval** of the rate a new run at that condition would
+  measure (adds the scatter of one run about the surface,
+  :attr:`SurfaceFit.residual_scale`).
+
+Two propagation methods are offered. The delta method linearises ln k in the
+parameters,
+
+.. math::
+
+    \\mathrm{se}^2(\\ln \\hat k) = J\\,\\Sigma\\,J^T, \\qquad
+    \\ln \\hat k \\pm t_{1-\\alpha/2,\\nu}\\,\\mathrm{se}, \\qquad
+    \\ln \\hat k \\pm t_{1-\\alpha/2,\\nu}\\sqrt{\\mathrm{se}^2 + \\sigma_\\mathrm{run}^2}
+
+(e.g. Seber and Wild, "Nonlinear Regression", Wiley 1989, section 5.1), with
+:math:`J = \\partial \\ln k/\\partial\\theta`, :math:`\\Sigma` the parameter
+covariance and :math:`\\nu` the residual degrees of freedom of the fit.
+Student's t (not the normal quantile) is used because the scale of the run
+scatter is estimated from a handful of runs (Knapp-Hartung scaling, see
+:mod:`kinetics.surface`). Monte Carlo draws parameter sets from the
+multivariate t distribution with the same centre, covariance and :math:`\\nu`
+(normal draws scaled by a shared :math:`\\sqrt{\\nu/\\chi^2_\\nu}`) and takes
+percentiles of ln k, so both methods rest on the same distribution and agree
+where ln k is close to linear in the parameters.
+
+DT50 and DT90 follow from first-order kinetics,
+:math:`\\mathrm{DT50} = \\ln 2/k`, :math:`\\mathrm{DT90} = \\ln 10/k`, and their
+intervals are the transformed rate intervals (the transform is monotone).
+
+Flags (boolean arrays, one entry per condition)
+-----------------------------------------------
+``temperature_outside_range`` / ``pH_outside_range``
+    The condition lies outside the measured temperature / pH range.
+``ea_from_prior``
+    Pathways whose activation energy came from the prior carry at least 1 %
+    of the predicted rate.
+``uncharacterised_pathway_matters``
+    For each pathway the data could not characterise
+    (:attr:`SurfaceFit.uncharacterised_pathways`), its largest possible rate
+    constant is the one at which that pathway alone would account for the
+    whole rate of some measured run (carried between temperatures with the
+    prior activation energy). The flag is set where that pathway could then
+    exceed the whole predicted rate, i.e. where the prediction could be low by
+    a factor of two or more. At the measured pH values the bound is at most the
+    measured rate, so the flag marks pH (and temperature) extrapolation the
+    data cannot check.
+
+``extrapolation_ln_k`` (float array)
+    How far the prediction leaves the measured box, in ln k units:
+    :math:`|\\ln \\hat k(x) - \\ln \\hat k(x_\\mathrm{box})|`, where
+    :math:`x_\\mathrm{box}` is the condition with temperature and pH clipped
+    into their measured ranges (ionic strength and salinity unchanged). It is
+    0 inside the measured ranges and, e.g., 2.3 where the surface has been
+    extrapolated by a factor of ten in rate.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Any, Mapping
+
+import numpy as np
+from scipy import stats
+
+from kinetics.caution import CAUTION_TEXT
+from kinetics.errors import InputError
+from kinetics.surface import (
+    GAS_CONSTANT_J_PER_MOL_K,
+    PATHWAYS,
+    SurfaceFit,
+    _check_level,
+    _conditions,
+    _logsumexp,
+    _ln_concentrations,
+)
+
+__all__ = ["PREDICTION_METHODS", "Prediction", "PredictionInterval", "predict"]
+
+#: Interval propagation methods.
+PREDICTION_METHODS: tuple[str, ...] = ("delta", "montecarlo")
+#: Contribution above which a prior-Ea pathway sets the ``ea_from_prior`` flag.
+EA_PRIOR_FLAG_CONTRIBUTION = 0.01
+#: Ratio (largest possible hidden-pathway rate / predicted rate) above which
+#: ``uncharacterised_pathway_matters`` is set.
+HIDDEN_PATHWAY_FLAG_RATIO = 1.0
+
+_LN2 = math.log(2.0)
+_LN10 = math.log(10.0)
+# Largest number of floats held at once by a Monte Carlo block.
+_MC_BLOCK_FLOATS = 4_000_000
+
+
+@dataclass(frozen=True)
+class PredictionInterval:
+    """Intervals of k, DT50 and DT90 at one level.
+
+    Attributes
+    ----------
+    kind : str
+        ``"confidence"`` (mean rate) or ``"prediction"`` (a new run).
+    level : float
+    k_low_per_s, k_high_per_s : numpy.ndarray
+        Rate bounds [1/s].
+    dt50_low_s, dt50_high_s, dt90_low_s, dt90_high_s : numpy.ndarray
+        DT50 and DT90 bounds [s].
+    """
+
+    kind: str
+    level: float
+    k_low_per_s: np.ndarray
+    k_high_per_s: np.ndarray
+    dt50_low_s: np.ndarray
+    dt50_high_s: np.ndarray
+    dt90_low_s: np.ndarray
+    dt90_high_s: np.ndarray
+
+
+@dataclass(frozen=True, eq=False)
+class Prediction:
+    """Rates, DT50 and DT90 with intervals at field conditions (columnar).
+
+    Every array has the broadcast shape of the conditions (at least 1-D).
+
+    Attributes
+    ----------
+    temperature_K, pH, ionic_strength_M, salinity : numpy.ndarray
+        The conditions [K, -, mol/L, -].
+    k_per_s, ln_k : numpy.ndarray
+        Predicted rate constant [1/s] and its ln.
+    se_ln_k : numpy.ndarray
+        Delta-method standard error of ln k [-] (reported for both methods).
+    k_ci_low_per_s, k_ci_high_per_s : numpy.ndarray
+        Confidence interval of the mean rate [1/s].
+    k_pi_low_per_s, k_pi_high_per_s : numpy.ndarray
+        Prediction interval for a new run [1/s].
+    dt50_s, dt50_ci_low_s, dt50_ci_high_s, dt50_pi_low_s, dt50_pi_high_s : numpy.ndarray
+        DT50 and its intervals [s].
+    dt90_s, dt90_ci_low_s, dt90_ci_high_s, dt90_pi_low_s, dt90_pi_high_s : numpy.ndarray
+        DT90 and its intervals [s].
+    dominant_pathway : numpy.ndarray of str
+        Pathway carrying the largest share of k.
+    contributions : dict
+        Pathway -> fraction of k [-].
+    flags : dict
+        Flag name -> boolean array (see module docstring).
+    extrapolation_ln_k : numpy.ndarray
+        Distance from the measured box in ln k units [-].
+    level : float
+        Level of both intervals.
+    method : str
+        ``"delta"`` or ``"montecarlo"``.
+    dof : int
+        Degrees of freedom of the t quantile.
+    residual_scale : float
+        Run scatter on ln k used by the prediction interval [-].
+    caution : str
+        :data:`kinetics.caution.CAUTION_TEXT`.
+    """
+
+    temperature_K: np.ndarray
+    pH: np.ndarray
+    ionic_strength_M: np.ndarray
+    salinity: np.ndarray
+    k_per_s: np.ndarray
+    ln_k: np.ndarray
+    se_ln_k: np.ndarray
+    k_ci_low_per_s: np.ndarray
+    k_ci_high_per_s: np.ndarray
+    k_pi_low_per_s: np.ndarray
+    k_pi_high_per_s: np.ndarray
+    dt50_s: np.ndarray
+    dt50_ci_low_s: np.ndarray
+    dt50_ci_high_s: np.ndarray
+    dt50_pi_low_s: np.ndarray
+    dt50_pi_high_s: np.ndarray
+    dt90_s: np.ndarray
+    dt90_ci_low_s: np.ndarray
+    dt90_ci_high_s: np.ndarray
+    dt90_pi_low_s: np.ndarray
+    dt90_pi_high_s: np.ndarray
+    dominant_pathway: np.ndarray
+    contributions: Mapping[str, np.ndarray]
+    flags: Mapping[str, np.ndarray]
+    extrapolation_ln_k: np.ndarray
+    level: float
+    method: str
+    dof: int
+    residual_scale: float
+    caution: str = CAUTION_TEXT
+
+    def __len__(self) -> int:
+        return int(self.k_per_s.size)
+
+    def interval(self, level: float | None = None, kind: str = "confidence") -> PredictionInterval:
+        """Confidence or prediction interval of k, DT50 and DT90.
+
+        Parameters
+        ----------
+        level : float, optional
+            Level; default the level of the prediction. Delta-method
+            predictions can be re-expressed at any level; Monte Carlo ones only
+            at the level they were computed at.
+        kind : str
+            ``"confidence"`` (mean rate) or ``"prediction"`` (a new run).
+
+        Returns
+        -------
+        PredictionInterval
+        """
+        if kind not in ("confidence", "prediction"):
+            raise InputError(f"unknown interval kind {kind!r}; valid: 'confidence', 'prediction'")
+        lv = self.level if level is None else _check_level(level)
+        if lv == self.level:
+            if kind == "confidence":
+                lo, hi = self.k_ci_low_per_s, self.k_ci_high_per_s
+            else:
+                lo, hi = self.k_pi_low_per_s, self.k_pi_high_per_s
+        elif self.method == "delta":
+            tq = float(stats.t.ppf(0.5 + lv / 2.0, self.dof))
+            se = self.se_ln_k
+            if kind == "prediction":
+                se = np.sqrt(se**2 + self.residual_scale**2)
+            lo, hi = np.exp(self.ln_k - tq * se), np.exp(self.ln_k + tq * se)
+        else:
+            raise InputError(
+                f"these Monte Carlo intervals were computed at level {self.level}; call predict "
+                f"again with level={lv} for another level"
+            )
+        return PredictionInterval(
+            kind=kind,
+            level=lv,
+            k_low_per_s=lo,
+            k_high_per_s=hi,
+            dt50_low_s=_LN2 / hi,
+            dt50_high_s=_LN2 / lo,
+            dt90_low_s=_LN10 / hi,
+            dt90_high_s=_LN10 / lo,
+        )
+
+
+def _readonly(arr: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
+    out = np.ascontiguousarray(arr).reshape(shape)
+    out.setflags(write=False)
+    return out
+
+
+def predict(
+    surface: SurfaceFit,
+    temperature_K: Any,
+    pH: Any,
+    *,
+    ionic_strength_M: Any = 0.0,
+    salinity: Any = 0.0,
+    level: float = 0.95,
+    method: str = "delta",
+    n_draws: int = 10000,
+    seed: Any = None,
+) -> Prediction:
+    """Predict hydrolysis rates, DT50 and DT90 at field conditions.
+
+    Parameters
+    ----------
+    surface : SurfaceFit
+        A fitted rate surface (:func:`kinetics.surface.fit_surface`).
+    temperature_K : array_like
+        Water temperature [K], 273.15-373.15.
+    pH : array_like
+        Field pH, 0-14 (total scale where ``salinity > 0``).
+    ionic_strength_M : array_like
+        Ionic strength [mol/L] of fresh water.
+    salinity : array_like
+        Practical salinity [-] of seawater or brackish water.
+    level : float
+        Level of the confidence and prediction intervals, e.g. 0.95.
+    method : str
+        ``"delta"`` or ``"montecarlo"`` (see module docstring).
+    n_draws : int
+        Monte Carlo parameter draws (>= 100).
+    seed : int or numpy.random.Generator, optional
+        Seed of the Monte Carlo draws (same seed, same intervals).
+
+    Returns
+    -------
+    Prediction
+        Columnar arrays in the broadcast shape of the conditions, with flags
+        and the caution text.
+
+    Raises
+    ------
+    InputError
+        A condition is not finite or out of range (the message names its
+        index), an unknown method, a bad level or number of draws.
+    """
+    if not isinstance(surface, SurfaceFit):
+        raise InputError(
+            f"predict needs a SurfaceFit from fit_surface, got {type(surface).__name__}"
+        )
+    if method not in PREDICTION_METHODS:
+        raise InputError(f"unknown method {method!r}; valid: {', '.join(PREDICTION_METHODS)}")
+    lv = _check_level(level)
+    if method == "montecarlo":
+        if isinstance(n_draws, bool) or not isinstance(n_draws, (int, np.integer)) or n_draws < 100:
+            raise InputError(f"n_draws must be a whole number >= 100, got {n_draws!r}")
+
+    T, ph, ionic, sal, shape = _conditions(temperature_K, pH, ionic_strength_M, salinity)
+    lnc = _ln_concentrations(T, ph, ionic, sal)
+    terms, _ = surface._terms_at(T, lnc, None)
+    lnk = _logsumexp(terms, axis=1)
+    w = np.exp(terms - lnk[:, None])
+
+    # delta method: se^2 = J Sigma J^T, row by row
+    jac = np.empty((T.size, surface.n_params))
+    R = GAS_CONSTANT_J_PER_MOL_K
+    if surface.temperature_model == "arrhenius":
+        jac[:, 0::2] = w
+        jac[:, 1::2] = -w * ((1.0 / T - 1.0 / surface.reference_temperature_K) / R)[:, None]
+    else:
+        jac[:, 0::2] = -w / (R * T)[:, None]
+        jac[:, 1::2] = w / R
+    cov = np.asarray(surface.covariance, dtype=float)
+    se2 = np.einsum("ij,jk,ik->i", jac, cov, jac, optimize=True)
+    se = np.sqrt(np.clip(se2, 0.0, None))
+    rs = float(surface.residual_scale)
+    dof = int(surface.dof)
+
+    if method == "delta":
+        tq = float(stats.t.ppf(0.5 + lv / 2.0, dof))
+        half_ci = tq * se
+        half_pi = tq * np.sqrt(se * se + rs * rs)
+        ci_lo, ci_hi = lnk - half_ci, lnk + half_ci
+        pi_lo, pi_hi = lnk - half_pi, lnk + half_pi
+    else:
+        ci_lo, ci_hi, pi_lo, pi_hi = _monte_carlo(surface, T, lnc, lv, int(n_draws), seed, rs, dof)
+
+    # flags
+    t_lo, t_hi = surface.temperature_range_K
+    p_lo, p_hi = surface.pH_range
+    eps = 1e-9
+    flags: dict[str, np.ndarray] = {
+        "temperature_outside_range": (T < t_lo - eps) | (T > t_hi + eps),
+        "pH_outside_range": (ph < p_lo - eps) | (ph > p_hi + eps),
+    }
+    prior_share = np.zeros(T.size)
+    for j, p in enumerate(surface.pathways):
+        if p in surface.ea_from_prior:
+            prior_share += w[:, j]
+    flags["ea_from_prior"] = prior_share >= EA_PRIOR_FLAG_CONTRIBUTION
+    hidden = np.zeros(T.size, dtype=bool)
+    for p, ln_kmax_ref in surface.hidden_pathway_ln_k_ref_max.items():
+        j = PATHWAYS.index(p)
+        ln_hidden = (
+            ln_kmax_ref
+            - surface.hidden_pathway_Ea_J_per_mol / R * (1.0 / T - 1.0 / surface.reference_temperature_K)
+            + lnc[:, j]
+        )
+        hidden |= ln_hidden - lnk > math.log(HIDDEN_PATHWAY_FLAG_RATIO) + 1e-9
+    flags["uncharacterised_pathway_matters"] = hidden
+
+    # extrapolation in ln k units: distance to the prediction clipped into the measured box
+    extrap = np.zeros(T.size)
+    outside = flags["temperature_outside_range"] | flags["pH_outside_range"]
+    if outside.any():
+        Tc = np.clip(T[outside], t_lo, t_hi)
+        pc = np.clip(ph[outside], p_lo, p_hi)
+        lnc_c = _ln_concentrations(Tc, pc, ionic[outside], sal[outside])
+        terms_c, _ = surface._terms_at(Tc, lnc_c, None)
+        extrap[outside] = np.abs(lnk[outside] - _logsumexp(terms_c, axis=1))
+
+    k = np.exp(lnk)
+    k_ci_lo, k_ci_hi = np.exp(ci_lo), np.exp(ci_hi)
+    k_pi_lo, k_pi_hi = np.exp(pi_lo), np.exp(pi_hi)
+    names = np.array(surface.pathways)
+    dominant = names[np.argmax(w, axis=1)]
+
+    def out(a: np.ndarray) -> np.ndarray:
+        return _readonly(a, shape)
+
+    return Prediction(
+        temperature_K=out(T),
+        pH=out(ph),
+        ionic_strength_M=out(ionic),
+        salinity=out(sal),
+        k_per_s=out(k),
+        ln_k=out(lnk),
+        se_ln_k=out(se),
+        k_ci_low_per_s=out(k_ci_lo),
+        k_ci_high_per_s=out(k_ci_hi),
+        k_pi_low_per_s=out(k_pi_lo),
+        k_pi_high_per_s=out(k_pi_hi),
+        dt50_s=out(_LN2 / k),
+        dt50_ci_low_s=out(_LN2 / k_ci_hi),
+        dt50_ci_high_s=out(_LN2 / k_ci_lo),
+        dt50_pi_low_s=out(_LN2 / k_pi_hi),
+        dt50_pi_high_s=out(_LN2 / k_pi_lo),
+        dt90_s=out(_LN10 / k),
+        dt90_ci_low_s=out(_LN10 / k_ci_hi),
+        dt90_ci_high_s=out(_LN10 / k_ci_lo),
+        dt90_pi_low_s=out(_LN10 / k_pi_hi),
+        dt90_pi_high_s=out(_LN10 / k_pi_lo),
+        dominant_pathway=out(dominant),
+        contributions={p: out(w[:, j]) for j, p in enumerate(surface.pathways)},
+        flags={name: out(v) for name, v in flags.items()},
+        extrapolation_ln_k=out(extrap),
+        level=lv,
+        method=method,
+        dof=dof,
+        residual_scale=rs,
+        caution=CAUTION_TEXT,
+    )
+
+
+def _monte_carlo(
+    surface: SurfaceFit,
+    T: np.ndarray,
+    lnc: np.ndarray,
+    level: float,
+    n_draws: int,
+    seed: Any,
+    residual_scale: float,
+    dof: int,
+) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+    """Percentile intervals of ln k from multivariate-t parameter draws."""
+    rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
+    normal = surface.sample_parameters(n_draws, rng)
+    scale = np.sqrt(dof / rng.chisquare(dof, size=n_draws))
+    draws = surface.estimates[None, :] + (normal - surface.estimates[None, :]) * scale[:, None]
+    q = [0.5 - level / 2.0, 0.5 + level / 2.0]
+    n = T.size
+    ci_lo, ci_hi = np.empty(n), np.empty(n)
+    pi_lo, pi_hi = np.empty(n), np.empty(n)
+    block = max(1, _MC_BLOCK_FLOATS // (n_draws * max(1, len(surface.pathways))))
+    for start in range(0, n, block):
+        sl = slice(start, min(n, start + block))
+        terms, _ = surface._terms_at(T[sl], lnc[sl], draws)
+        lnk = _logsumexp(terms, axis=1)  # (n_draws, block)
+        lo, hi = np.quantile(lnk, q, axis=0)
+        ci_lo[sl], ci_hi[sl] = lo, hi
+        noise = rng.standard_normal(lnk.shape) * (residual_scale * scale[:, None])
+        lo, hi = np.quantile(lnk + noise, q, axis=0)
+        pi_lo[sl], pi_hi[sl] = lo, hi
+    return ci_lo, ci_hi, pi_lo, pi_hi
