@@ -405,11 +405,13 @@ def _parse_row(row: _Row) -> dict[str, Any] | None:
         return None
     if is_series:
         if time_v is None:
-            row.problem(cols.time_col or "time", "time is empty")
+            if not row.text(cols.time_col):
+                row.problem(cols.time_col or "time", "time is empty")
         elif time_v < 0:
             row.problem(cols.time_col or "time", f"time {time_v:g} is negative")
         if conc_v is None:
-            row.problem(cols.conc_col or "concentration", "concentration is empty")
+            if not row.text(cols.conc_col):
+                row.problem(cols.conc_col or "concentration", "concentration is empty")
         elif conc_v < 0:
             row.problem(cols.conc_col or "concentration",
                         f"concentration {conc_v:g} is negative")
@@ -796,7 +798,8 @@ def predictions_to_rows(prediction: Any) -> list[dict[str, Any]]:
     return rows
 
 
-def series_fit_rows(entries: Sequence[tuple[Mapping[str, Any], Any]]) -> list[dict[str, Any]]:
+def series_fit_rows(entries: Sequence[tuple[Mapping[str, Any], Any]],
+                    level: float = 0.95) -> list[dict[str, Any]]:
     """Rows of per-run fit results.
 
     Parameters
@@ -806,61 +809,34 @@ def series_fit_rows(entries: Sequence[tuple[Mapping[str, Any], Any]]) -> list[di
     """
     rows = []
     for info, fit in entries:
-        lo, hi = _k_interval(fit)
+        lo, hi = _k_interval(fit, level)
         rows.append({
             **{k: info.get(k) for k in ("run_uid", "run", "temperature_K", "pH")},
             "model": fit.model, "n_points": int(fit.n_points), "k_per_s": float(fit.k_per_s),
             "k_ci_low_per_s": lo, "k_ci_high_per_s": hi, "se_ln_k": float(fit.se_ln_k),
             "dt50_s": float(fit.dt50_s), "dt90_s": float(fit.dt90_s),
             "chi2_error_level_percent": float(fit.chi2_error_level_percent),
-            "aicc": float(fit.aicc), "rss": float(fit.rss),
+            "aicc": None if fit.aicc is None else float(fit.aicc), "rss": float(fit.rss),
         })
     return rows
 
 
 def _k_interval(fit: Any, level: float = 0.95) -> tuple[float | None, float | None]:
-    """95 % interval of k from ln k and its standard error (normal on ln k)."""
-    from scipy import stats
-
-    se = float(fit.se_ln_k)
-    k = float(fit.k_per_s)
-    if not (math.isfinite(se) and k > 0):
-        return None, None
-    z = float(stats.norm.ppf(0.5 + level / 2))
-    return k * math.exp(-z * se), k * math.exp(z * se)
+    """Confidence interval of the run's rate constant (from :meth:`SeriesFit.interval`)."""
+    iv = fit.interval(level)
+    return float(iv.k_low_per_s), float(iv.k_high_per_s)
 
 
 def surface_parameter_rows(surface: Any, level: float = 0.95) -> list[dict[str, Any]]:
     """Rows (one per parameter) of a fitted surface: estimate, standard error, interval."""
-    import numpy as np
-
     interval = surface.interval(level)
-    cov = np.asarray(surface.covariance, dtype=float)
     rows = []
     for i, name in enumerate(surface.parameter_names):
-        lo, hi = _interval_bounds(interval, name, i)
-        var = cov[i, i] if cov.ndim == 2 and i < cov.shape[0] else float("nan")
         rows.append({
             "parameter": name, "estimate": float(surface.estimates[i]),
-            "standard_error": float(math.sqrt(var)) if var >= 0 and math.isfinite(var) else None,
-            "ci_low": lo, "ci_high": hi, "level": level,
+            "standard_error": float(surface.standard_errors[i]),
+            "ci_low": float(interval.lower[i]), "ci_high": float(interval.upper[i]),
+            "level": float(interval.level),
             "from_prior": any(name == f"Ea_{p}_J_per_mol" for p in surface.ea_from_prior),
         })
     return rows
-
-
-def _interval_bounds(interval: Any, name: str, index: int) -> tuple[float | None, float | None]:
-    """Read bounds of parameter ``name`` from an ``interval(level)`` result of any shape."""
-    if isinstance(interval, Mapping):
-        value = interval.get(name)
-        if value is not None:
-            return float(value[0]), float(value[1])
-        return None, None
-    for low_name, high_name in (("low", "high"), ("lower", "upper")):
-        if hasattr(interval, low_name) and hasattr(interval, high_name):
-            return (float(getattr(interval, low_name)[index]),
-                    float(getattr(interval, high_name)[index]))
-    try:
-        return float(interval[index][0]), float(interval[index][1])
-    except (TypeError, IndexError, KeyError):
-        return None, None

@@ -328,6 +328,7 @@ def plot(
     note: str = "",
     top_axis: tuple[str, Sequence[tuple[float, str]]] | None = None,
     plot_id: str = "",
+    legend_position: str = "right",
 ) -> str:
     """Render a complete ``<svg>`` element.
 
@@ -352,6 +353,9 @@ def plot(
         (e.g. temperatures in °C over a 1000/T axis), with the given title.
     plot_id : str
         Value of the ``data-plot`` attribute, for finding the plot in a page.
+    legend_position : {"right", "bottom"}
+        Legend beside the frame (wide plots) or in rows under it (narrow plots; the
+        picture then grows in height as needed).
 
     Returns
     -------
@@ -375,20 +379,30 @@ def plot(
     x0, x1 = _data_range(xs, x_axis.log, x_axis.limits, pad=0.03)
     y0, y1 = _data_range(ys, y_axis.log, y_axis.limits, pad=0.06)
 
+    if legend_position not in ("right", "bottom"):
+        raise ValueError(f"unknown legend position {legend_position!r}; valid: right, bottom")
     legend_entries = [b.label for b in bands if b.label] + [s.label for s in series if s.label]
     legend_w = 0
-    if legend and legend_entries:
+    legend_rows: list[list[tuple[str, object]]] = []
+    show_legend = legend and bool(legend_entries)
+    if show_legend and legend_position == "right":
         longest = max(len(t) for t in legend_entries)
-        legend_w = int(min(230, max(120, 34 + 6.3 * longest)))
+        legend_w = int(min(260, max(110, 50 + 6.4 * longest)))
     left, right = 68.0, 14.0 + legend_w
     top = 34.0 + (26.0 if top_axis else 0.0)
     bottom = 52.0 + (14.0 if note else 0.0)
+    if show_legend and legend_position == "bottom":
+        legend_rows = _legend_rows([*[("band", b) for b in bands if b.label],
+                                    *[("series", x) for x in series if x.label]],
+                                   width - left - right)
+        height = int(height + 17 * len(legend_rows) + 8)
     frame = _Frame(left, top, max(width - left - right, 60.0), max(height - top - bottom, 60.0),
                    x0, x1, y0, y1, x_axis.log, y_axis.log)
 
     out: list[str] = []
     out.append(
         f'<svg xmlns="http://www.w3.org/2000/svg" class="fr-plot" data-plot="{_esc(plot_id)}" '
+        f'data-series="{len(series)}" '
         f'width="{width}" height="{height}" viewBox="0 0 {width} {height}" role="img" '
         f'aria-label="{_esc(title or y_axis.label)}" '
         f'font-family="Source Sans Pro, Segoe UI, Helvetica, Arial, sans-serif" font-size="12">'
@@ -456,8 +470,10 @@ def plot(
             f'<text class="note" x="{_fmt(frame.left)}" y="{_fmt(frame.top + frame.height + 54)}" '
             f'font-size="10.5" fill="#555">{_esc(note)}</text>'
         )
-    if legend and legend_entries:
+    if show_legend and legend_position == "right":
         out.append(_legend(frame.left + frame.width + 12, frame.top, legend_w - 4, series, bands))
+    elif show_legend:
+        out.append(_legend_bottom(frame.left, frame.top + frame.height + bottom + 4, legend_rows))
     out.append("</svg>")
     return "".join(out)
 
@@ -581,43 +597,69 @@ def _series_markup(frame: _Frame, s: Series) -> str:
 
 
 def _legend(x: float, y: float, w: float, series: Sequence[Series], bands: Sequence[Band]) -> str:
-    parts = ['<g class="legend">']
+    entries = [*[("band", b) for b in bands if b.label], *[("series", s) for s in series if s.label]]
     row = 17.0
-    n = sum(1 for b in bands if b.label) + sum(1 for s in series if s.label)
-    parts.append(
-        f'<rect x="{_fmt(x)}" y="{_fmt(y)}" width="{_fmt(w)}" height="{_fmt(n * row + 10)}" '
-        f'fill="#ffffff" stroke="#bbb" stroke-width="0.8" rx="3"/>'
-    )
+    parts = ['<g class="legend">',
+             f'<rect x="{_fmt(x)}" y="{_fmt(y)}" width="{_fmt(w)}" '
+             f'height="{_fmt(len(entries) * row + 10)}" fill="#ffffff" stroke="#bbb" '
+             f'stroke-width="0.8" rx="3"/>']
     cy = y + 5 + row / 2
-    for b in bands:
-        if not b.label:
-            continue
-        parts.append(
-            f'<rect x="{_fmt(x + 8)}" y="{_fmt(cy - 5)}" width="24" height="10" fill="#8f9aa8" '
-            f'fill-opacity="0.28" stroke="#6c7683" stroke-width="0.6" stroke-dasharray="3 2"/>'
-            f'<text x="{_fmt(x + 38)}" y="{_fmt(cy + 4)}" fill="#222" font-size="11">'
-            f"{_esc(b.label)}</text>"
-        )
+    for kind, item in entries:
+        parts.append(_legend_key(kind, item, x, cy))
+        parts.append(f'<text x="{_fmt(x + 38)}" y="{_fmt(cy + 4)}" fill="#222" font-size="11">'
+                     f"{_esc(item.label)}</text>")
         cy += row
-    for s in series:
-        if not s.label:
-            continue
-        ink, dash, shape, filled = _style(s.style)
-        if s.kind in ("line", "line+points"):
-            dash_attr = f' stroke-dasharray="{dash}"' if dash else ""
-            parts.append(
-                f'<line x1="{_fmt(x + 6)}" x2="{_fmt(x + 34)}" y1="{_fmt(cy)}" y2="{_fmt(cy)}" '
-                f'stroke="{ink}" stroke-width="{_fmt(s.width)}"{dash_attr}/>'
-            )
-        if s.kind in ("points", "line+points"):
-            parts.append(
-                f'<path d="{_marker_path(shape, x + 20, cy, 3.6)}" '
-                f'{_marker_attrs(ink, shape, filled)}/>'
-            )
+    parts.append("</g>")
+    return "".join(parts)
+
+
+def _entry_width(label: str) -> float:
+    return 46.0 + 6.4 * len(label)
+
+
+def _legend_rows(entries: list[tuple[str, object]], width: float) -> list[list[tuple[str, object]]]:
+    rows: list[list[tuple[str, object]]] = [[]]
+    used = 0.0
+    for kind, item in entries:
+        w = _entry_width(item.label)  # type: ignore[attr-defined]
+        if rows[-1] and used + w > width:
+            rows.append([])
+            used = 0.0
+        rows[-1].append((kind, item))
+        used += w
+    return [r for r in rows if r]
+
+
+def _legend_key(kind: str, item: object, x: float, cy: float) -> str:
+    if kind == "band":
+        return (f'<rect x="{_fmt(x + 8)}" y="{_fmt(cy - 5)}" width="24" height="10" '
+                f'fill="#8f9aa8" fill-opacity="0.28" stroke="#6c7683" stroke-width="0.6" '
+                f'stroke-dasharray="3 2"/>')
+    s = item  # a Series
+    ink, dash, shape, filled = _style(s.style)  # type: ignore[attr-defined]
+    parts = []
+    if s.kind in ("line", "line+points"):  # type: ignore[attr-defined]
+        dash_attr = f' stroke-dasharray="{dash}"' if dash else ""
         parts.append(
-            f'<text x="{_fmt(x + 38)}" y="{_fmt(cy + 4)}" fill="#222" font-size="11">'
-            f"{_esc(s.label)}</text>"
-        )
-        cy += row
+            f'<line x1="{_fmt(x + 6)}" x2="{_fmt(x + 34)}" y1="{_fmt(cy)}" y2="{_fmt(cy)}" '
+            f'stroke="{ink}" stroke-width="{_fmt(s.width)}"{dash_attr}/>')  # type: ignore[attr-defined]
+    if s.kind in ("points", "line+points"):  # type: ignore[attr-defined]
+        parts.append(f'<path d="{_marker_path(shape, x + 20, cy, 3.6)}" '
+                     f'{_marker_attrs(ink, shape, filled)}/>')
+    return "".join(parts)
+
+
+def _legend_bottom(x0: float, y0: float, rows: list[list[tuple[str, object]]]) -> str:
+    parts = ['<g class="legend">']
+    cy = y0 + 8
+    for row in rows:
+        x = x0 - 6
+        for kind, item in row:
+            label = item.label  # type: ignore[attr-defined]
+            parts.append(_legend_key(kind, item, x, cy))
+            parts.append(f'<text x="{_fmt(x + 38)}" y="{_fmt(cy + 4)}" fill="#222" '
+                         f'font-size="11">{_esc(label)}</text>')
+            x += _entry_width(label)
+        cy += 17
     parts.append("</g>")
     return "".join(parts)
