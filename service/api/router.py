@@ -1,0 +1,19 @@
+"""The list of routers mounted under ``/v1``: add a resource with one line here."""
+
+from __future__ import annotations
+
+from fastapi import APIRouter
+
+from service.api.routes import runs, studies, substances
+from service.errors import ERROR_RESPONSES
+
+#: routers mounted under /v1, in OpenAPI order
+ROUTERS: list[APIRouter] = [
+    substances.router,
+    studies.router,
+    runs.router,
+]
+
+api_router = APIRouter(prefix="/v1", responses=ERROR_RESPONSES)
+for _router in ROUTERS:
+    api_router.include_router(_router)

@@ -1,0 +1,1 @@
+"""Subcommands of the ``fieldrate`` command, one module each (see :mod:`service.cli`)."""

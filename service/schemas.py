@@ -1,0 +1,499 @@
+"""Request and response bodies (pydantic): a ``...Create`` and a ``...Public`` per resource.
+
+Field names carry their units (``temperature_K``, ``k_per_s``, ``dt50_s``). Input units are
+accepted as the laboratory sends them (``time_unit="d"``, ``concentration_unit="mg/L"``)
+and converted once, through :mod:`kinetics.units`, to SI / canonical units. NaN and
+Infinity are rejected everywhere (``allow_inf_nan=False``) and unknown fields are refused,
+so a mistyped field name is a 422, not a silently ignored value.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import re
+from typing import Any, Generic, Literal, Optional, TypeVar
+
+import numpy as np
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    PrivateAttr,
+    field_validator,
+    model_validator,
+)
+
+from kinetics import units
+
+__all__ = [
+    "Strict",
+    "Page",
+    "SubstanceCreate",
+    "SubstancePublic",
+    "StudyCreate",
+    "StudyPublic",
+    "SeriesIn",
+    "RateIn",
+    "RunData",
+    "RunCreate",
+    "RunSupersede",
+    "RunWithdraw",
+    "SeriesPublic",
+    "RunPublic",
+    "RunBatchCreate",
+    "RunBatchPublic",
+    "validate_cas_rn",
+    "run_public",
+]
+
+T = TypeVar("T")
+
+_CAS_PATTERN = re.compile(r"^(\d{2,7})-(\d{2})-(\d)$")
+
+
+class Strict(BaseModel):
+    """Base of every request body: finite numbers only, no unknown fields."""
+
+    model_config = ConfigDict(allow_inf_nan=False, extra="forbid")
+
+
+class Public(BaseModel):
+    """Base of every response body."""
+
+    model_config = ConfigDict(from_attributes=True, allow_inf_nan=False)
+
+
+class Page(Public, Generic[T]):
+    """One page of a list: ``items`` plus the ``total`` matching and the window asked for."""
+
+    items: list[T]
+    total: int
+    limit: int
+    offset: int
+
+
+def validate_cas_rn(value: str) -> str:
+    """Check the format and check digit of a CAS Registry Number.
+
+    The check digit is the sum of the other digits, each multiplied by its position
+    counted from the right (starting at 1), modulo 10 (CAS Registry Number check digit
+    rule, published by Chemical Abstracts Service).
+
+    Raises
+    ------
+    ValueError
+        If the format is not ``NNNNNNN-NN-N`` or the check digit does not match.
+    """
+    text = value.strip()
+    match = _CAS_PATTERN.match(text)
+    if not match:
+        raise ValueError(
+            f"CAS RN {value!r} is not of the form 2-7 digits, 2 digits, 1 check digit "
+            "separated by hyphens (e.g. 7732-18-5)"
+        )
+    digits = (match.group(1) + match.group(2))[::-1]
+    check = sum((i + 1) * int(d) for i, d in enumerate(digits)) % 10
+    if check != int(match.group(3)):
+        raise ValueError(
+            f"CAS RN {value!r} fails its check digit: expected {check}, got {match.group(3)}"
+        )
+    return text
+
+
+# --------------------------------------------------------------------------- substances
+class SubstanceCreate(Strict):
+    name: str = Field(min_length=1, max_length=200, examples=["Veltrazine (invented)"])
+    cas_rn: Optional[str] = Field(default=None, description="CAS Registry Number, check digit verified")
+    smiles: Optional[str] = Field(default=None, max_length=2000)
+    substance_class: Optional[str] = Field(default=None, max_length=200)
+    notes: Optional[str] = Field(default=None, max_length=20_000)
+
+    @field_validator("name")
+    @classmethod
+    def _name_not_blank(cls, v: str) -> str:
+        if not v.strip():
+            raise ValueError("substance name must not be blank")
+        return v.strip()
+
+    @field_validator("cas_rn")
+    @classmethod
+    def _cas(cls, v: Optional[str]) -> Optional[str]:
+        return None if v is None else validate_cas_rn(v)
+
+
+class SubstancePublic(Public):
+    id: int
+    name: str
+    cas_rn: Optional[str]
+    smiles: Optional[str]
+    substance_class: Optional[str]
+    notes: Optional[str]
+    created_at: dt.datetime
+    created_by: str
+
+
+# --------------------------------------------------------------------------- studies
+class StudyCreate(Strict):
+    substance_id: int = Field(ge=1)
+    laboratory: str = Field(min_length=1, max_length=300)
+    test_guideline: Optional[str] = Field(default=None, max_length=300)
+    glp: bool = False
+    reference: Optional[str] = Field(default=None, max_length=1000)
+    start_date: Optional[dt.date] = None
+    end_date: Optional[dt.date] = None
+    notes: Optional[str] = Field(default=None, max_length=20_000)
+
+    @model_validator(mode="after")
+    def _dates(self) -> "StudyCreate":
+        if self.start_date and self.end_date and self.end_date < self.start_date:
+            raise ValueError(
+                f"end_date {self.end_date} is before start_date {self.start_date}"
+            )
+        return self
+
+
+class StudyPublic(Public):
+    id: int
+    substance_id: int
+    laboratory: str
+    test_guideline: Optional[str]
+    glp: bool
+    reference: Optional[str]
+    start_date: Optional[dt.date]
+    end_date: Optional[dt.date]
+    notes: Optional[str]
+    created_at: dt.datetime
+    created_by: str
+
+
+# --------------------------------------------------------------------------- runs
+def _check_series_model(value: Optional[str]) -> Optional[str]:
+    if value is None:
+        return None
+    from kinetics.series import SERIES_MODELS
+
+    if value not in SERIES_MODELS:
+        raise ValueError(
+            f"series_model {value!r} is not known; choose one of {', '.join(SERIES_MODELS)}"
+        )
+    return value
+
+
+class SeriesIn(Strict):
+    """A concentration-time series in the units the laboratory reports."""
+
+    time: list[float] = Field(min_length=1, description="sampling times in time_unit")
+    time_unit: str = Field(default="d", description="one of s, min, h, d")
+    concentration: list[float] = Field(min_length=1, description="in concentration_unit")
+    concentration_unit: str = Field(description="e.g. mg/L, umol/L, % (of initial)")
+    below_loq: Optional[list[bool]] = Field(
+        default=None, description="true where the value is below the limit of quantification"
+    )
+    loq: Optional[float] = Field(default=None, gt=0, description="limit of quantification in concentration_unit")
+
+    _time_s: np.ndarray = PrivateAttr()
+    _concentration: np.ndarray = PrivateAttr()
+    _canonical_unit: str = PrivateAttr()
+    _loq_canonical: Optional[float] = PrivateAttr(default=None)
+
+    @field_validator("time_unit")
+    @classmethod
+    def _time_unit(cls, v: str) -> str:
+        units.time_to_s(0.0, v)
+        return v
+
+    @field_validator("concentration_unit")
+    @classmethod
+    def _conc_unit(cls, v: str) -> str:
+        units.concentration_to_canonical(1.0, v)
+        return v
+
+    @field_validator("time")
+    @classmethod
+    def _times(cls, v: list[float]) -> list[float]:
+        for i, t in enumerate(v):
+            if t < 0:
+                raise ValueError(f"sampling time {t!r} at position {i} is negative")
+        if any(b <= a for a, b in zip(v, v[1:])):
+            i = next(i for i, (a, b) in enumerate(zip(v, v[1:])) if b <= a)
+            raise ValueError(
+                f"sampling times must increase: {v[i + 1]!r} at position {i + 1} "
+                f"does not follow {v[i]!r}"
+            )
+        return v
+
+    @field_validator("concentration")
+    @classmethod
+    def _concentrations(cls, v: list[float]) -> list[float]:
+        for i, c in enumerate(v):
+            if c < 0:
+                raise ValueError(
+                    f"concentration {c!r} at position {i} is negative; report values below "
+                    "the limit of quantification with below_loq instead"
+                )
+        return v
+
+    @model_validator(mode="after")
+    def _convert(self) -> "SeriesIn":
+        n = len(self.time)
+        if len(self.concentration) != n:
+            raise ValueError(
+                f"time has {n} values but concentration has {len(self.concentration)}"
+            )
+        if self.below_loq is not None and len(self.below_loq) != n:
+            raise ValueError(f"time has {n} values but below_loq has {len(self.below_loq)}")
+        if n < 3:
+            raise ValueError(
+                f"a series needs at least 3 points to estimate a rate constant, got {n}"
+            )
+        self._time_s = np.asarray(units.time_to_s(self.time, self.time_unit), dtype=float)
+        conc, canonical = units.concentration_to_canonical(self.concentration, self.concentration_unit)
+        self._concentration = np.asarray(conc, dtype=float)
+        self._canonical_unit = canonical
+        if self.loq is not None:
+            loq, _ = units.concentration_to_canonical(self.loq, self.concentration_unit)
+            self._loq_canonical = float(loq)
+        return self
+
+    @property
+    def time_s(self) -> np.ndarray:
+        return self._time_s
+
+    @property
+    def concentration_canonical(self) -> np.ndarray:
+        return self._concentration
+
+    @property
+    def canonical_unit(self) -> str:
+        return self._canonical_unit
+
+    @property
+    def loq_canonical(self) -> Optional[float]:
+        return self._loq_canonical
+
+
+class RateIn(Strict):
+    """A rate constant (or DT50) as reported, with an optional standard error of ln k."""
+
+    k: Optional[float] = Field(default=None, gt=0, description="pseudo-first-order rate constant in k_unit")
+    k_unit: str = Field(default="1/d", description="one of 1/s, 1/min, 1/h, 1/d")
+    dt50: Optional[float] = Field(default=None, gt=0, description="half-life in dt50_unit")
+    dt50_unit: str = Field(default="d", description="one of s, min, h, d")
+    se_ln_k: Optional[float] = Field(default=None, gt=0, description="standard error of ln k")
+
+    _k_per_s: Optional[float] = PrivateAttr(default=None)
+    _dt50_s: Optional[float] = PrivateAttr(default=None)
+
+    @field_validator("k_unit")
+    @classmethod
+    def _k_unit(cls, v: str) -> str:
+        units.rate_to_per_s(1.0, v)
+        return v
+
+    @field_validator("dt50_unit")
+    @classmethod
+    def _dt50_unit(cls, v: str) -> str:
+        units.time_to_s(0.0, v)
+        return v
+
+    @model_validator(mode="after")
+    def _convert(self) -> "RateIn":
+        if (self.k is None) == (self.dt50 is None):
+            raise ValueError("give exactly one of k (with k_unit) or dt50 (with dt50_unit)")
+        if self.k is not None:
+            self._k_per_s = float(units.rate_to_per_s(self.k, self.k_unit))
+            if not np.isfinite(self._k_per_s) or self._k_per_s <= 0:
+                raise ValueError(f"k {self.k!r} {self.k_unit} is not a usable rate constant")
+        else:
+            self._dt50_s = float(units.time_to_s(self.dt50, self.dt50_unit))
+        return self
+
+    @property
+    def k_per_s(self) -> Optional[float]:
+        return self._k_per_s
+
+    @property
+    def dt50_s(self) -> Optional[float]:
+        return self._dt50_s
+
+
+class RunData(Strict):
+    """The measured content of one incubation run (without its study)."""
+
+    temperature_K: Optional[float] = Field(default=None, description="incubation temperature [K]")
+    temperature_C: Optional[float] = Field(default=None, description="incubation temperature [°C]")
+    pH: float = Field(description="pH measured at the incubation temperature (0-14)")
+    buffer: Optional[str] = Field(default=None, max_length=300)
+    ionic_strength_M: Optional[float] = Field(default=None, ge=0, le=10, description="[mol/L]")
+    cosolvent_percent_v_v: Optional[float] = Field(default=None, ge=0, le=100)
+    sterile: bool = True
+    dark: bool = True
+    replicate_label: str = Field(default="", max_length=100)
+    series_model: Optional[str] = Field(
+        default=None, description="model for this run's series: SFO, FOMC, DFOP or HS (default SFO)"
+    )
+    notes: Optional[str] = Field(default=None, max_length=20_000)
+    series: Optional[SeriesIn] = None
+    rate: Optional[RateIn] = None
+
+    _temperature_K: float = PrivateAttr()
+
+    @field_validator("pH")
+    @classmethod
+    def _ph(cls, v: float) -> float:
+        units.validate_pH(v)
+        return v
+
+    @field_validator("temperature_K")
+    @classmethod
+    def _t_K(cls, v: Optional[float]) -> Optional[float]:
+        if v is not None:
+            units.validate_temperature_K(v)
+        return v
+
+    @field_validator("temperature_C")
+    @classmethod
+    def _t_C(cls, v: Optional[float]) -> Optional[float]:
+        if v is not None and not 0.0 <= v <= 100.0:
+            raise ValueError(
+                f"temperature_C {v!r} °C is not liquid water at 0.1 MPa (0 °C to 100 °C)"
+            )
+        return v
+
+    @field_validator("series_model")
+    @classmethod
+    def _model(cls, v: Optional[str]) -> Optional[str]:
+        return _check_series_model(v)
+
+    @model_validator(mode="after")
+    def _check(self) -> "RunData":
+        if (self.temperature_K is None) == (self.temperature_C is None):
+            raise ValueError("give exactly one of temperature_K or temperature_C")
+        if self.temperature_K is not None:
+            t = float(units.validate_temperature_K(self.temperature_K))
+        else:
+            t = float(units.validate_temperature_K(units.celsius_to_kelvin(self.temperature_C)))
+        self._temperature_K = t
+        if (self.series is None) == (self.rate is None):
+            raise ValueError(
+                "a run holds either a concentration-time series (series) or a reported "
+                "rate constant / DT50 (rate): give exactly one"
+            )
+        if self.rate is not None and self.series_model is not None:
+            raise ValueError("series_model applies to a series; this run reports a rate")
+        return self
+
+    @property
+    def temperature_K_si(self) -> float:
+        return self._temperature_K
+
+
+class RunCreate(RunData):
+    study_id: int = Field(ge=1)
+
+
+class RunSupersede(RunData):
+    """A corrected version of a run, replacing the current one."""
+
+    reason: str = Field(min_length=3, max_length=5000, description="why the run is corrected")
+
+
+class RunWithdraw(Strict):
+    reason: str = Field(min_length=3, max_length=5000, description="why the run is retracted")
+
+
+class RunBatchCreate(Strict):
+    runs: list[RunCreate] = Field(min_length=1)
+
+
+class SeriesPublic(Public):
+    time_s: list[float]
+    concentration: list[float]
+    concentration_unit: str = Field(description="canonical: mol/m3, kg/m3 or fraction")
+    below_loq: list[bool]
+    loq: Optional[float]
+    time_unit_sent: Optional[str]
+    concentration_unit_sent: Optional[str]
+
+
+class RunPublic(Public):
+    id: int = Field(description="identifier of this version")
+    run_uid: str = Field(description="identifier of the run across its versions")
+    version: int
+    status: Literal["current", "superseded", "withdrawn"]
+    study_id: int
+    substance_id: int
+    temperature_K: float
+    temperature_C: float
+    pH: float
+    buffer: Optional[str]
+    ionic_strength_M: Optional[float]
+    cosolvent_percent_v_v: Optional[float]
+    sterile: bool
+    dark: bool
+    replicate_label: str
+    series_model: Optional[str]
+    notes: Optional[str]
+    kind: Literal["series", "rate"]
+    series: Optional[SeriesPublic]
+    k_per_s: Optional[float]
+    dt50_s: Optional[float]
+    se_ln_k: Optional[float]
+    reason: Optional[str] = Field(description="why this version replaced the previous one")
+    supersedes_id: Optional[int]
+    created_at: dt.datetime
+    created_by: str
+    valid_to: Optional[dt.datetime] = Field(description="when this version stopped being current")
+    withdrawn_reason: Optional[str]
+
+
+class RunBatchPublic(Public):
+    created: list[RunPublic]
+    count: int
+
+
+
+def run_public(run: Any) -> RunPublic:
+    """The public view of a stored run version (a :class:`service.models.Run`)."""
+    series = None
+    if run.kind == "series":
+        obs = run.observations
+        series = SeriesPublic(
+            time_s=[o.time_s for o in obs],
+            concentration=[o.concentration for o in obs],
+            concentration_unit=run.concentration_unit,
+            below_loq=[o.below_loq for o in obs],
+            loq=run.loq,
+            time_unit_sent=run.time_unit_sent,
+            concentration_unit_sent=run.concentration_unit_sent,
+        )
+    return RunPublic(
+        id=run.id,
+        run_uid=run.run_uid,
+        version=run.version,
+        status=run.status,
+        study_id=run.study_id,
+        substance_id=run.substance_id,
+        temperature_K=run.temperature_K,
+        temperature_C=float(units.kelvin_to_celsius(run.temperature_K)),
+        pH=run.pH,
+        buffer=run.buffer,
+        ionic_strength_M=run.ionic_strength_M,
+        cosolvent_percent_v_v=run.cosolvent_percent_v_v,
+        sterile=run.sterile,
+        dark=run.dark,
+        replicate_label=run.replicate_label,
+        series_model=run.series_model,
+        notes=run.notes,
+        kind=run.kind,
+        series=series,
+        k_per_s=run.k_per_s,
+        dt50_s=run.dt50_s,
+        se_ln_k=run.se_ln_k,
+        reason=run.reason,
+        supersedes_id=run.supersedes_id,
+        created_at=run.created_at,
+        created_by=run.created_by,
+        valid_to=run.valid_to,
+        withdrawn_reason=run.withdrawn_reason,
+    )

@@ -1,0 +1,43 @@
+"""Small builders of request bodies shared by the service tests (invented data)."""
+
+from __future__ import annotations
+
+from typing import Any
+
+INVENTED = "invented test data"
+
+
+def substance_body(name: str = "Testazine (invented)", **extra: Any) -> dict[str, Any]:
+    return {"name": name, "notes": INVENTED, **extra}
+
+
+def study_body(substance_id: int, **extra: Any) -> dict[str, Any]:
+    return {"substance_id": substance_id, "laboratory": "Test Bench Laboratory (invented)", **extra}
+
+
+def series_run_body(study_id: int, *, temperature_C: float = 50.0, pH: float = 7.0,
+                    replicate_label: str = "A", conc: list[float] | None = None,
+                    **extra: Any) -> dict[str, Any]:
+    return {
+        "study_id": study_id,
+        "temperature_C": temperature_C,
+        "pH": pH,
+        "replicate_label": replicate_label,
+        "series": {
+            "time": [0, 1, 2, 4, 7],
+            "time_unit": "d",
+            "concentration": conc or [10.0, 8.1, 6.6, 4.4, 2.4],
+            "concentration_unit": "mg/L",
+        },
+        **extra,
+    }
+
+
+def make_study(client) -> tuple[int, int]:
+    """Create a substance and a study; return their ids."""
+    r = client.post("/v1/substances", json=substance_body())
+    assert r.status_code == 201, r.text
+    sid = r.json()["id"]
+    r = client.post("/v1/studies", json=study_body(sid))
+    assert r.status_code == 201, r.text
+    return sid, r.json()["id"]
