@@ -11,6 +11,8 @@ salinity) of a water body. This module supplies them:
 - :func:`davies_log10_gamma` - Davies activity coefficients,
 - :func:`ionic_strength_from_salinity` - ionic strength of seawater (DOE 1994),
 - :func:`seawater_density_kg_m3` - one-atmosphere seawater density (Millero & Poisson 1981),
+- :func:`bisulfate_dissociation_constant`, :func:`total_sulfate_mol_per_kg` - the
+  total-to-free hydrogen-ion conversion in seawater (Dickson 1990; Morris & Riley 1966),
 - :func:`hydronium_hydroxide_molar` - [H+] and [OH-] in mol/L from a measured pH.
 
 pH scales
@@ -29,7 +31,9 @@ For seawater (``salinity > 0``) the Millero (1995) constant is a
 on which seawater pH is normally reported. A pH measured in seawater with a
 glass electrode calibrated in dilute standard buffers is *not* on this scale
 and must be converted by the user first; the two differ by roughly 0.1 pH unit,
-an amount that depends on the electrode and is not corrected here.
+an amount that depends on the electrode and is not corrected here. From the
+total scale, :func:`hydronium_hydroxide_molar` returns the *free* hydronium
+concentration by default (bisulfate removed with Dickson's 1990 constant).
 
 All functions are vectorised over numpy arrays, broadcast their arguments,
 return ``numpy.float64`` for all-scalar input, and raise
@@ -69,8 +73,15 @@ __all__ = [
     "debye_huckel_A",
     "davies_log10_gamma",
     "ionic_strength_from_salinity",
+    "total_sulfate_mol_per_kg",
+    "bisulfate_dissociation_constant",
+    "SEAWATER_H_SCALES",
     "hydronium_hydroxide_molar",
 ]
+
+#: Which hydrogen-ion concentration :func:`hydronium_hydroxide_molar` returns
+#: in seawater: free hydronium (default) or total (free + HSO4-).
+SEAWATER_H_SCALES: tuple[str, ...] = ("free", "total")
 
 #: Exact SI defining constants and CODATA 2018 recommended values used here
 #: (Tiesinga et al. 2021, Rev. Mod. Phys. 93, 025010).
@@ -454,6 +465,81 @@ def seawater_density_kg_m3(temperature_K: Any, salinity: Any) -> Any:
     return _out(rho_w + a * S + b * S**1.5 + c * S**2)
 
 
+def total_sulfate_mol_per_kg(salinity: Any) -> Any:
+    """Total sulfate of seawater from its practical salinity.
+
+    .. math::
+
+        S_T = \\frac{0.14}{96.062}\\,\\frac{S}{1.80655}\\quad[\\mathrm{mol\\,kg^{-1}\\ solution}]
+
+    Reference: A. W. Morris and J. P. Riley, Deep-Sea Res. 13 (1966) 699-705,
+    as given in DOE (1994), chapter 5. About 0.0282 mol/kg at S = 35.
+
+    Parameters
+    ----------
+    salinity : array_like
+        Practical salinity, 0-45.
+
+    Returns
+    -------
+    numpy.float64 or numpy.ndarray
+        Total sulfate [mol/kg-solution].
+    """
+    s = _salinity(salinity)
+    return _out(0.14 / 96.062 * s / 1.80655)
+
+
+def bisulfate_dissociation_constant(temperature_K: Any, salinity: Any) -> Any:
+    """Stoichiometric dissociation constant of HSO4- in seawater, Dickson (1990).
+
+    :math:`K_S = [\\mathrm{H^+}]_F[\\mathrm{SO_4^{2-}}]/[\\mathrm{HSO_4^-}]` on the
+    free scale in mol/kg-solution, with :math:`I` from
+    :func:`ionic_strength_from_salinity`:
+
+    .. math::
+
+        \\ln K_S = -\\frac{4276.1}{T} + 141.328 - 23.093\\ln T
+            + \\left(-\\frac{13856}{T} + 324.57 - 47.986\\ln T\\right) I^{1/2}
+            + \\left(\\frac{35474}{T} - 771.54 + 114.723\\ln T\\right) I
+            - \\frac{2698}{T} I^{3/2} + \\frac{1776}{T} I^2
+            + \\ln(1 - 0.001005\\,S)
+
+    valid for 0-45 °C and S = 5-45 (used down to S = 0 here, where the
+    bisulfate correction vanishes with the sulfate).
+
+    References: A. G. Dickson, "Standard potential of the reaction
+    AgCl(s) + 1/2 H2(g) = Ag(s) + HCl(aq), and the standard acidity constant of
+    the ion HSO4- in synthetic sea water from 273.15 to 318.15 K", J. Chem.
+    Thermodyn. 22 (1990) 113-127; DOE (1994), chapter 5.
+
+    Parameters
+    ----------
+    temperature_K : array_like
+        Temperature [K], 273.15-318.15.
+    salinity : array_like
+        Practical salinity, 0-45.
+
+    Returns
+    -------
+    numpy.float64 or numpy.ndarray
+        :math:`K_S` [mol/kg-solution].
+    """
+    T = _temperature(temperature_K, SEAWATER_MIN_K, SEAWATER_MAX_K, "seawater correlations")
+    S = _salinity(salinity)
+    T, S = np.broadcast_arrays(T, S)
+    i = np.asarray(ionic_strength_from_salinity(S))
+    ln_t = np.log(T)
+    ln_ks = (
+        -4276.1 / T + 141.328 - 23.093 * ln_t
+        + (-13856.0 / T + 324.57 - 47.986 * ln_t) * np.sqrt(i)
+        + (35474.0 / T - 771.54 + 114.723 * ln_t) * i
+        - 2698.0 / T * i**1.5
+        + 1776.0 / T * i**2
+        + np.log(1.0 - 0.001005 * S)
+    )
+    return _out(np.exp(ln_ks))
+
+
 def debye_huckel_A(temperature_K: Any) -> Any:
     """Debye-Hückel limiting-law slope A for log10 γ on the molar (mol/L) scale.
 
@@ -593,6 +679,8 @@ def hydronium_hydroxide_molar(
     temperature_K: Any,
     ionic_strength_M: Any = 0.0,
     salinity: Any = 0.0,
+    *,
+    seawater_h_scale: str = "free",
 ) -> tuple[Any, Any]:
     """Concentrations of H+ and OH- [mol/L] from a measured pH.
 
@@ -619,12 +707,20 @@ def hydronium_hydroxide_molar(
     .. math::
 
         [\\mathrm{H^+}]_T = 10^{-\\mathrm{pH}_T}, \\qquad
-        [\\mathrm{OH^-}] = 10^{\\mathrm{pH}_T - \\mathrm{p}K_w^*}, \\qquad
+        [\\mathrm{OH^-}] = \\frac{K_w^*}{[\\mathrm{H^+}]_T}, \\qquad
+        [\\mathrm{H^+}]_F = \\frac{[\\mathrm{H^+}]_T}{1 + S_T/K_S}
+
         c_i = [i]\\,\\rho_{sw} / (1000\\ \\mathrm{kg\\,m^{-3}})
 
-    with :math:`\\rho_{sw}` from :func:`seawater_density_kg_m3`. The returned
-    H+ is then the total hydrogen ion concentration, which includes HSO4-; the
-    free hydronium concentration is somewhat lower.
+    with :math:`S_T` from :func:`total_sulfate_mol_per_kg`, :math:`K_S` from
+    :func:`bisulfate_dissociation_constant` (the total-to-free relation of
+    DOE 1994, chapter 2) and :math:`\\rho_{sw}` from
+    :func:`seawater_density_kg_m3`. By default the free hydronium concentration
+    :math:`[\\mathrm{H^+}]_F` is returned, the quantity that corresponds to
+    :math:`10^{-\\mathrm{pH}}/\\gamma` in fresh water and so to acid-catalysed
+    rate constants measured in dilute buffers; ``seawater_h_scale="total"``
+    returns :math:`[\\mathrm{H^+}]_T` instead. At S = 35 and 25 °C the two
+    differ by the factor 1 + S_T/K_S = 1.28.
 
     Parameters
     ----------
@@ -638,6 +734,8 @@ def hydronium_hydroxide_molar(
         ``salinity > 0`` (the salinity already fixes the medium).
     salinity : array_like, optional
         Practical salinity, 0-45.
+    seawater_h_scale : {"free", "total"}, optional
+        Hydrogen-ion concentration returned where ``salinity > 0``.
 
     Returns
     -------
@@ -653,10 +751,15 @@ def hydronium_hydroxide_molar(
     References
     ----------
     IAPWS R11-07 (2007); Millero, Geochim. Cosmochim. Acta 59 (1995) 661-677;
+    Dickson, J. Chem. Thermodyn. 22 (1990) 113-127; DOE (1994), chapters 2 and 5;
     Davies, "Ion Association" (1962); IUPAC, "Measurement of pH. Definition,
     standards, and procedures", Pure Appl. Chem. 74 (2002) 2169-2200 (pH as an
     activity quantity).
     """
+    if seawater_h_scale not in SEAWATER_H_SCALES:
+        raise InputError(
+            f"unknown seawater_h_scale {seawater_h_scale!r}; valid: {', '.join(SEAWATER_H_SCALES)}"
+        )
     p = validate_pH(pH)
     T = as_float_array(temperature_K, "temperature_K")
     i = _ionic_strength(ionic_strength_M)
@@ -691,6 +794,13 @@ def hydronium_hydroxide_molar(
         ts, ss = T[sea], s[sea]
         rho = np.asarray(seawater_density_kg_m3(ts, ss)) / 1000.0
         pkw = np.asarray(pKw_seawater(ts, ss))
-        h[sea] = 10.0 ** (-p[sea]) * rho
+        h_total = 10.0 ** (-p[sea])
         oh[sea] = 10.0 ** (p[sea] - pkw) * rho
+        if seawater_h_scale == "free":
+            ratio = np.asarray(total_sulfate_mol_per_kg(ss)) / np.asarray(
+                bisulfate_dissociation_constant(ts, ss)
+            )
+            h[sea] = h_total / (1.0 + ratio) * rho
+        else:
+            h[sea] = h_total * rho
     return _out(h), _out(oh)

@@ -305,11 +305,39 @@ def test_hydronium_hydroxide_activity_correction():
     assert_allclose(oh1, oh0 / gamma, rtol=1e-12, atol=0.0)
 
 
-def test_hydronium_hydroxide_seawater_total_scale():
-    h, oh = water.hydronium_hydroxide_molar(8.1, 298.15, salinity=35.0)
+def test_hydronium_hydroxide_seawater_total_and_free():
     rho = water.seawater_density_kg_m3(298.15, 35.0) / 1000.0
-    assert_allclose(h, 10 ** -8.1 * rho, rtol=1e-12, atol=0.0)
-    assert_allclose(oh, 10 ** (8.1 - water.pKw(298.15, 35.0)) * rho, rtol=1e-12, atol=0.0)
+    h_t, oh_t = water.hydronium_hydroxide_molar(8.1, 298.15, salinity=35.0,
+                                                seawater_h_scale="total")
+    assert_allclose(h_t, 10 ** -8.1 * rho, rtol=1e-12, atol=0.0)
+    assert_allclose(oh_t, 10 ** (8.1 - water.pKw(298.15, 35.0)) * rho, rtol=1e-12, atol=0.0)
+    h_f, oh_f = water.hydronium_hydroxide_molar(8.1, 298.15, salinity=35.0)
+    assert_allclose(oh_f, oh_t, rtol=1e-15, atol=0.0)
+    factor = 1.0 + water.total_sulfate_mol_per_kg(35.0) / water.bisulfate_dissociation_constant(
+        298.15, 35.0)
+    assert_allclose(h_f, h_t / factor, rtol=1e-12, atol=0.0)
+    # Free-scale pH exceeds total-scale pH by about 0.1 in ocean water
+    # (common practice, no source).
+    assert_allclose(math.log10(factor), 0.11, rtol=0.0, atol=0.01)
+
+
+def test_unknown_seawater_h_scale_lists_valid_ones():
+    with pytest.raises(InputError, match="free, total"):
+        water.hydronium_hydroxide_molar(8.0, 298.15, salinity=35.0, seawater_h_scale="NBS")
+
+
+def test_bisulfate_check_value():
+    # DOE (1994) handbook, chapter 5, check value for Dickson (1990):
+    # ln KS = -2.30 at S = 35, t = 25 °C (from memory; the same figure is given
+    # beside an independent published implementation of the equation).
+    assert_allclose(math.log(water.bisulfate_dissociation_constant(298.15, 35.0)), -2.30,
+                    rtol=0.0, atol=0.005)
+
+
+def test_total_sulfate():
+    # Morris & Riley (1966) as in DOE (1994) ch. 5: S_T = (0.14/96.062)(S/1.80655);
+    # 0.02824 mol/kg-soln at S = 35 (formula evaluated by hand).
+    assert_allclose(water.total_sulfate_mol_per_kg(35.0), 0.028235, rtol=0.0, atol=2e-6)
 
 
 def test_hydronium_hydroxide_broadcasts_over_conditions():
