@@ -69,6 +69,9 @@ __all__ = [
     "read_runs_csv",
     "parse_runs_csv",
     "run_to_payload",
+    "ImportSummary",
+    "NewSubstanceRefused",
+    "store_runs",
     "runs_to_csv",
     "rows_to_csv",
     "to_json",
@@ -558,11 +561,17 @@ def parse_runs_csv(
             rec = group["rec"]
             obs = group["obs"]
             if rec["kind"] == "series":
-                times = [o.time for o in obs]
-                if len(set(times)) < 3:
+                if len(obs) < 3:
                     problems.append(CsvProblem(
                         group["first_line"], "", f"run {rec['replicate_label']!r} has "
-                        f"{len(set(times))} distinct time(s); a series needs at least 3"))
+                        f"{len(obs)} observation(s); a series needs at least 3"))
+                for prev, cur in zip(obs, obs[1:]):
+                    if cur.time <= prev.time:
+                        problems.append(CsvProblem(
+                            cur.line, "time", f"run {rec['replicate_label']!r}: time "
+                            f"{cur.time:g} does not follow {prev.time:g} (line {prev.line}); "
+                            "list the observations of a run in increasing time, one per time"))
+                        break
     if problems:
         raise CsvFormatError(problems, truncated)
     runs = []
@@ -728,7 +737,7 @@ def runs_to_csv(runs: Sequence[CsvRun], comment: str | None = None) -> str:
 
 
 def run_to_payload(run: CsvRun) -> dict[str, Any]:
-    """The JSON body of one run for the service's run-creation endpoints."""
+    """The JSON body of one run for ``POST /v1/runs`` (without ``study_id``)."""
     payload: dict[str, Any] = {
         "temperature_K": run.temperature_K,
         "pH": run.pH,
@@ -740,29 +749,202 @@ def run_to_payload(run: CsvRun) -> dict[str, Any]:
         value = getattr(run, name)
         if value is not None:
             payload[name] = value
-    if run.model:
-        payload["series_model"] = run.model
     if run.kind == "series":
-        payload["kind"] = "series"
-        payload["time_unit"] = run.time_unit
-        payload["concentration_unit"] = run.concentration_unit
-        payload["observations"] = [
-            {"time": o.time, "concentration": o.concentration, "below_loq": o.below_loq}
-            for o in run.observations
-        ]
+        if run.model:
+            payload["series_model"] = run.model
+        series: dict[str, Any] = {
+            "time": [o.time for o in run.observations],
+            "time_unit": run.time_unit,
+            "concentration": [o.concentration for o in run.observations],
+            "concentration_unit": run.concentration_unit,
+        }
+        if any(o.below_loq for o in run.observations):
+            series["below_loq"] = [o.below_loq for o in run.observations]
         if run.loq is not None:
-            payload["loq"] = run.loq
+            series["loq"] = run.loq
+        payload["series"] = series
     else:
-        payload["kind"] = "rate"
+        rate: dict[str, Any] = {}
         if run.k_obs is not None:
-            payload["k_obs"] = run.k_obs
-            payload["rate_unit"] = run.rate_unit
+            rate.update(k=run.k_obs, k_unit=run.rate_unit)
         else:
-            payload["dt50"] = run.dt50
-            payload["dt50_unit"] = run.dt50_unit
+            rate.update(dt50=run.dt50, dt50_unit=run.dt50_unit)
         if run.se_ln_k is not None:
-            payload["se_ln_k"] = run.se_ln_k
+            rate["se_ln_k"] = run.se_ln_k
+        payload["rate"] = rate
     return payload
+
+
+@dataclass(frozen=True)
+class ImportSummary:
+    """What an import stored.
+
+    Attributes
+    ----------
+    substances_created, studies_created : tuple of str
+        Names of new substances; "laboratory (reference)" of new studies.
+    runs_created : int
+        Number of runs stored.
+    run_uids : tuple of str
+        Identifiers of the stored runs, in file order.
+    substance_ids : dict
+        Substance name -> id, for every substance in the file.
+    """
+
+    substances_created: tuple[str, ...]
+    studies_created: tuple[str, ...]
+    runs_created: int
+    run_uids: tuple[str, ...]
+    substance_ids: Mapping[str, int]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "substances_created": list(self.substances_created),
+            "studies_created": list(self.studies_created),
+            "runs_created": self.runs_created,
+            "run_uids": list(self.run_uids),
+            "substance_ids": dict(self.substance_ids),
+        }
+
+
+class NewSubstanceRefused(InputError):
+    """The file names substances that are not registered and may not be created."""
+
+    def __init__(self, names: Sequence[str]):
+        self.names = tuple(names)
+        super().__init__(
+            f"substance(s) not registered: {', '.join(repr(n) for n in names)}; register them "
+            "first (an admin key may import new substances)")
+
+
+def store_runs(session: Any, runs: Sequence[CsvRun], *, actor: str, max_points: int,
+               may_create_substances: bool = True,
+               progress: Callable[[int, int], None] | None = None) -> ImportSummary:
+    """Store runs read from a CSV file, creating missing substances and studies.
+
+    Everything happens in the caller's transaction; the caller commits. On any problem
+    nothing is stored (the caller rolls back) and the error names the CSV line.
+
+    Parameters
+    ----------
+    session : sqlalchemy.orm.Session
+        A write session.
+    runs : sequence of CsvRun
+        From :func:`read_runs_csv`.
+    actor : str
+        Who imports (recorded in the audit trail).
+    max_points : int
+        Largest accepted series.
+    may_create_substances : bool
+        Whether substances not yet registered may be created.
+    progress : callable or None
+        Called with (runs prepared, total runs).
+
+    Raises
+    ------
+    CsvFormatError
+        A run is rejected by the service's validation (line numbers of the run's rows).
+    NewSubstanceRefused
+        New substances named while ``may_create_substances`` is false.
+    service.errors.ItemErrors
+        Duplicates of stored runs (409), translated to CSV lines in the message.
+    """
+    from pydantic import ValidationError
+    from sqlalchemy import select
+
+    from service import crud
+    from service.errors import ItemErrors
+    from service.models import Study, Substance
+    from service.schemas import RunCreate, StudyCreate, SubstanceCreate
+
+    names = list(dict.fromkeys(r.substance for r in runs))
+    existing = {s.name: s for s in session.scalars(
+        select(Substance).where(Substance.name.in_(names))).all()}
+    missing = [n for n in names if n not in existing]
+    if missing and not may_create_substances:
+        raise NewSubstanceRefused(missing)
+    created_subs: list[str] = []
+    problems: list[CsvProblem] = []
+    first_line = {r.substance: r.first_line for r in reversed(runs)}
+    for name in missing:
+        try:
+            data = SubstanceCreate(name=name, notes="registered by CSV import")
+        except ValidationError as exc:
+            problems.append(CsvProblem(first_line[name], "substance", _pydantic_message(exc)))
+            continue
+        existing[name] = crud.create_substance(session, data=data, actor=actor)
+        created_subs.append(name)
+    if problems:
+        raise CsvFormatError(problems)
+    studies: dict[tuple[str, str, str], Any] = {}
+    created_studies: list[str] = []
+    for run in runs:
+        key = run.study_key
+        if key in studies:
+            continue
+        sub = existing[run.substance]
+        stmt = select(Study).where(Study.substance_id == sub.id,
+                                   Study.laboratory == run.laboratory)
+        match = None
+        for st in session.scalars(stmt.order_by(Study.id)).all():
+            if (st.reference or "") == (run.study_reference or ""):
+                match = st
+                break
+        if match is None:
+            try:
+                data = StudyCreate(substance_id=sub.id, laboratory=run.laboratory,
+                                   test_guideline=run.test_guideline, glp=bool(run.glp),
+                                   reference=run.study_reference)
+            except ValidationError as exc:
+                problems.append(CsvProblem(run.first_line, "laboratory", _pydantic_message(exc)))
+                continue
+            match = crud.create_study(session, data=data, actor=actor)
+            created_studies.append(run.laboratory + (f" ({run.study_reference})"
+                                                     if run.study_reference else ""))
+        studies[key] = match
+    if problems:
+        raise CsvFormatError(problems)
+    bodies: list[Any] = []
+    for i, run in enumerate(runs):
+        try:
+            bodies.append(RunCreate(study_id=studies[run.study_key].id, **run_to_payload(run)))
+        except ValidationError as exc:
+            problems.append(CsvProblem(run.first_line, "", f"run {run.replicate_label!r}: "
+                                       f"{_pydantic_message(exc)}"))
+        if progress is not None and (i % 50 == 0 or i == len(runs) - 1):
+            progress(i + 1, len(runs))
+    if problems:
+        raise CsvFormatError(problems)
+    try:
+        stored = crud.create_runs_batch(session, runs=bodies, actor=actor, max_points=max_points)
+    except ItemErrors as exc:
+        items = []
+        for item in exc.items:
+            loc = item.get("loc", [])
+            index = loc[2] if len(loc) > 2 and isinstance(loc[2], int) else None
+            msg = str(item.get("msg", ""))
+            if index is not None and index < len(runs):
+                r = runs[index]
+                msg = msg.replace(f"runs.{index}: ", "", 1)
+                msg = f"line {r.first_line} (run {r.replicate_label!r}): {msg}"
+            items.append({**item, "msg": msg})
+        raise ItemErrors(items, status_code=exc.status_code) from None
+    return ImportSummary(
+        substances_created=tuple(created_subs), studies_created=tuple(created_studies),
+        runs_created=len(stored), run_uids=tuple(r.run_uid for r in stored),
+        substance_ids={n: existing[n].id for n in names},
+    )
+
+
+def _pydantic_message(exc: Any) -> str:
+    msgs = []
+    for err in exc.errors():
+        msg = str(err.get("msg", "invalid value"))
+        if msg.startswith("Value error, "):
+            msg = msg[len("Value error, "):]
+        loc = ".".join(str(p) for p in err.get("loc", ()))
+        msgs.append(f"{loc}: {msg}" if loc else msg)
+    return "; ".join(msgs)
 
 
 #: columns of a predictions export, in order

@@ -35,6 +35,10 @@ __all__ = [
     "run_view_from_csv",
     "fit_surface_for_runs",
     "default_conditions",
+    "gather",
+    "runs_as_of",
+    "data_version_of",
+    "REPORT_FIT_OPTIONS",
     "pathway_ln_k",
     "pathway_points",
     "render_report",
@@ -357,6 +361,149 @@ def default_conditions(field_temperature_K: float,
     """Field conditions at one temperature and several pH values (fresh water)."""
     return [FieldCondition(f"{_temperature_label(field_temperature_K)}, pH {p:g}",
                            float(field_temperature_K), float(p)) for p in pH_values]
+
+
+#: fit options of the report (the service's defaults for a substance's model)
+REPORT_FIT_OPTIONS: dict[str, Any] = {
+    "temperature_model": "arrhenius",
+    "pathways": "auto",
+    "series_model": "run",
+    "error_model": "constant",
+    "ea_prior_J_per_mol": None,
+    "reference_temperature_K": 298.15,
+}
+
+
+def runs_as_of(session: Any, substance_id: int, as_of: dt.datetime | None) -> list[Any]:
+    """The run versions of a substance that were current at ``as_of`` (None: now).
+
+    A version was current at ``as_of`` if it was stored at or before it and was not yet
+    replaced or withdrawn (``valid_to`` empty or later).
+    """
+    from sqlalchemy import or_, select
+    from sqlalchemy.orm import selectinload
+
+    from service import crud
+    from service.models import Run
+
+    if as_of is None:
+        return crud.current_runs(session, substance_id=substance_id)
+    if as_of.tzinfo is None:
+        raise KineticsError(f"as_of {as_of.isoformat()} needs a time zone, e.g. ...Z for UTC")
+    stmt = (
+        select(Run)
+        .where(Run.substance_id == substance_id, Run.created_at <= as_of,
+               or_(Run.valid_to.is_(None), Run.valid_to > as_of))
+        .options(selectinload(Run.observations))
+        .order_by(Run.id)
+    )
+    return list(session.scalars(stmt).all())
+
+
+def data_version_of(substance_id: int, run_ids: Sequence[int]) -> str:
+    """Fingerprint of a set of run versions, as :func:`service.crud.data_version` forms it."""
+    import hashlib
+
+    text = f"substance={substance_id};runs=" + ",".join(str(i) for i in sorted(run_ids))
+    return hashlib.sha256(text.encode()).hexdigest()[:32]
+
+
+def gather(
+    session: Any,
+    substance_id: int,
+    *,
+    field_temperature_K: float,
+    pH_values: Sequence[float] = DEFAULT_FIELD_PH,
+    salinity: float = 0.0,
+    level: float = 0.95,
+    as_of: dt.datetime | None = None,
+    options: Mapping[str, Any] | None = None,
+    reproduce_query: str = "",
+    now: dt.datetime | None = None,
+) -> ReportData:
+    """Read a substance's data and fit it: everything :func:`render_report` needs.
+
+    Parameters
+    ----------
+    session : sqlalchemy.orm.Session
+        A read session.
+    substance_id : int
+        The substance.
+    field_temperature_K : float
+        Temperature of the field pH-rate profile and of the prediction table [K].
+    pH_values : sequence of float
+        pH values of the prediction table.
+    salinity : float
+        Practical salinity of the prediction table (0: fresh water).
+    level : float
+        Confidence level.
+    as_of : datetime or None
+        Read the data as they were at this time (UTC-aware); None: current data.
+    options : mapping or None
+        Fit options (defaults: :data:`REPORT_FIT_OPTIONS`).
+    reproduce_query : str
+        Request that reproduces this report, shown in it.
+    now : datetime or None
+        Generation time (default: now, UTC).
+
+    Raises
+    ------
+    service.errors.NotFound
+        If the substance does not exist.
+    kinetics.errors.InputError
+        If a condition is out of range (temperature, pH, salinity, level).
+    """
+    from service import crud
+    from service.fitting import compute_fit, run_input_from_model
+    from service.models import Study
+
+    from sqlalchemy import select
+
+    units.validate_temperature_K(field_temperature_K)
+    for p in pH_values:
+        units.validate_pH(p)
+    if not 0.0 < float(level) < 1.0:
+        from kinetics.errors import InputError
+
+        raise InputError(f"level must lie strictly between 0 and 1 (e.g. 0.95), got {level!r}")
+    opts = {**REPORT_FIT_OPTIONS, **(options or {})}
+    substance = crud.get_substance(session, substance_id=substance_id)
+    runs = runs_as_of(session, substance_id, as_of)
+    study_rows = session.scalars(select(Study).where(Study.substance_id == substance_id)
+                                 .order_by(Study.id)).all()
+    counts: dict[int, int] = {}
+    for r in runs:
+        counts[r.study_id] = counts.get(r.study_id, 0) + 1
+    studies = [{
+        "laboratory": st.laboratory, "test_guideline": st.test_guideline, "glp": st.glp,
+        "reference": st.reference, "start_date": st.start_date, "end_date": st.end_date,
+        "n_runs": counts.get(st.id, 0),
+    } for st in study_rows]
+    study_text = {st.id: st.laboratory + (f", {st.reference}" if st.reference else "")
+                  for st in study_rows}
+    views = [run_view(r, study=study_text.get(r.study_id, ""), error_model=opts["error_model"])
+             for r in runs]
+    surface, surface_error = None, None
+    try:
+        result = compute_fit([run_input_from_model(r) for r in runs], **opts)
+        surface = result.surface
+    except KineticsError as exc:
+        surface_error = str(exc)
+    conditions = [FieldCondition(
+        f"{_temperature_label(field_temperature_K)}, pH {p:g}"
+        + (f", salinity {salinity:g}" if salinity else ""),
+        float(field_temperature_K), float(p), 0.0, float(salinity)) for p in pH_values]
+    return ReportData(
+        substance={"id": substance.id, "name": substance.name, "cas_rn": substance.cas_rn,
+                   "smiles": substance.smiles, "substance_class": substance.substance_class,
+                   "notes": substance.notes},
+        studies=studies, runs=views, surface=surface, surface_error=surface_error,
+        field_temperature_K=float(field_temperature_K), conditions=conditions,
+        data_version=data_version_of(substance_id, [r.id for r in runs]),
+        generated_at=now or dt.datetime.now(dt.timezone.utc), level=float(level), as_of=as_of,
+        reproduce_query=reproduce_query,
+        fit_options={k: v for k, v in opts.items() if v is not None},
+    )
 
 
 # ------------------------------------------------------------------ pathway helpers
