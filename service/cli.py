@@ -20,6 +20,8 @@ __all__ = ["COMMAND_MODULES", "build_parser", "main"]
 COMMAND_MODULES: list[str] = [
     "service.commands.serve",
     "service.commands.db",
+    "service.commands.keys",
+    "service.commands.backup",
 ]
 
 

@@ -45,6 +45,7 @@ class Settings(BaseSettings):
     max_conditions_per_request: int = Field(default=200_000, ge=100_000)
     max_runs_per_batch: int = Field(default=5_000, ge=1)
     anonymous_read: bool = False
+    api_key_pepper: str = Field(default="", repr=False)  # server secret in key hashes (service.security)
     idempotency_ttl_s: float = Field(default=24 * 3600.0, gt=0)
     sqlite_busy_timeout_ms: int = Field(default=30_000, ge=0)
     run_migrations_on_startup: bool = True

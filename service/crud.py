@@ -9,6 +9,7 @@ lifecycle columns of the current version. Each create, supersede and withdraw wr
 
 from __future__ import annotations
 
+import datetime as dt
 import hashlib
 import uuid
 from collections.abc import Sequence
@@ -93,11 +94,20 @@ def list_audit_events(
     substance_id: Optional[int] = None,
     entity: Optional[str] = None,
     entity_id: Optional[str] = None,
+    action: Optional[str] = None,
+    since: Optional[dt.datetime] = None,
+    until: Optional[dt.datetime] = None,
     limit: int = 100,
     offset: int = 0,
 ) -> tuple[list[AuditEvent], int]:
-    """Audit events, oldest first, optionally filtered."""
+    """Audit events, oldest first, optionally filtered (``since`` <= at < ``until``, UTC-aware)."""
     stmt = select(AuditEvent)
+    if action is not None:
+        stmt = stmt.where(AuditEvent.action == action)
+    if since is not None:
+        stmt = stmt.where(AuditEvent.at >= since)
+    if until is not None:
+        stmt = stmt.where(AuditEvent.at < until)
     if substance_id is not None:
         stmt = stmt.where(AuditEvent.substance_id == substance_id)
     if entity is not None:

@@ -7,7 +7,7 @@ behind. Write sessions start as writers (``BEGIN IMMEDIATE`` on SQLite).
 
 from __future__ import annotations
 
-from collections.abc import Callable, Iterator
+from collections.abc import Iterator
 from dataclasses import dataclass, field
 from typing import Annotated
 
@@ -64,30 +64,9 @@ def get_write_session(request: Request) -> Iterator[Session]:
     yield from _session(request, write=True)
 
 
-def get_principal(request: Request) -> Principal:
-    """The calling principal.
-
-    Until API keys are enforced every caller is the single local principal with all
-    scopes; its label is what the audit trail records.
-    """
-    return Principal(label="local-open-access")
-
-
-def require_scope(scope: str) -> Callable[..., Principal]:
-    """A dependency that returns the principal if it holds ``scope``."""
-
-    def _dependency(principal: Annotated[Principal, Depends(get_principal)]) -> Principal:
-        from service.errors import ServiceError
-
-        if scope not in principal.scopes:
-            err = ServiceError("this key may not perform this operation")
-            err.status_code = 403
-            err.code = "forbidden"
-            raise err
-        return principal
-
-    return _dependency
-
+# API keys (401/403, scopes, anonymous reads) are checked in service.security
+from service.security import principal_for_request as get_principal  # noqa: E402
+from service.security import require_scope  # noqa: E402
 
 SettingsDep = Annotated[Settings, Depends(get_settings_dep)]
 ReadSession = Annotated[Session, Depends(get_read_session)]

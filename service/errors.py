@@ -73,6 +73,8 @@ class ErrorBody(BaseModel):
 
 #: documented error responses of every /v1 route
 ERROR_RESPONSES: dict[Union[int, str], dict[str, Any]] = {
+    401: {"model": ErrorBody, "description": "A missing, unknown or revoked API key"},
+    403: {"model": ErrorBody, "description": "The API key lacks the scope this operation needs"},
     404: {"model": ErrorBody, "description": "An id that does not exist"},
     409: {"model": ErrorBody, "description": "A duplicate, or a change to a run that is not current"},
     413: {"model": ErrorBody, "description": "A body, series or request beyond the configured limits"},
@@ -210,7 +212,9 @@ def install_error_handlers(app: FastAPI) -> None:
         body: dict[str, Any] = {"error": exc.code, "detail": exc.message}
         if exc.loc is not None:
             body["loc"] = exc.loc
-        return JSONResponse(status_code=exc.status_code, content=body)
+        return JSONResponse(
+            status_code=exc.status_code, content=body, headers=getattr(exc, "headers", None)
+        )
 
     @app.exception_handler(KineticsError)
     async def _kinetics(_request: Request, exc: KineticsError) -> JSONResponse:

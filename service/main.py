@@ -17,6 +17,7 @@ from service.api.routes import health
 from service.config import Settings, get_settings
 from service.db import make_engine, make_session_factory
 from service.errors import install_error_handlers
+from service.idempotency import install_idempotency
 from service.limits import BodySizeLimit
 
 __all__ = ["create_app", "app_from_env"]
@@ -58,6 +59,7 @@ def create_app(settings: Optional[Settings] = None) -> FastAPI:
     app.state.engine = engine
     app.state.session_factory = make_session_factory(engine)
     install_error_handlers(app)
+    install_idempotency(app)  # inside the size limit: oversized bodies never reach it
     app.add_middleware(BodySizeLimit, max_body_bytes=settings.max_body_bytes)
 
     from service.api.router import api_router

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from fastapi import APIRouter
 
-from service.api.routes import runs, studies, substances
+from service.api.routes import audit, keys, runs, studies, substances
 from service.errors import ERROR_RESPONSES
 
 #: routers mounted under /v1, in OpenAPI order
@@ -12,6 +12,8 @@ ROUTERS: list[APIRouter] = [
     substances.router,
     studies.router,
     runs.router,
+    audit.router,
+    keys.router,
 ]
 
 api_router = APIRouter(prefix="/v1", responses=ERROR_RESPONSES)

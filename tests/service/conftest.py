@@ -88,6 +88,16 @@ def app(settings: Settings):
 
 @pytest.fixture
 def client(app) -> Iterator[TestClient]:
-    """An HTTP client talking to the ASGI app in-process (startup runs upgrade head)."""
+    """An HTTP client talking to the ASGI app in-process (startup runs upgrade head).
+
+    It sends an admin API key (created for the test) with every request.
+    """
+    from service.security import issue_key
+
     with TestClient(app, raise_server_exceptions=False) as c:
+        _key_id, secret = issue_key(
+            app.state.session_factory, label="test suite (admin)", scopes="admin",
+            actor="test setup", pepper=app.state.settings.api_key_pepper,
+        )
+        c.headers["Authorization"] = f"Bearer {secret}"
         yield c
