@@ -45,11 +45,18 @@ _LAZY = {
     "Prediction": "kinetics.prediction",
     "equilibrium_ratio": "kinetics.equilibrium",
     "EquilibriumResult": "kinetics.equilibrium",
+    "Scenario": "kinetics.scenarios",
+    "ScenarioResult": "kinetics.scenarios",
+    "run_scenario": "kinetics.scenarios",
+    "normalise_dt50": "kinetics.normalisation",
+    "screen_persistence": "kinetics.screening",
+    "check_study": "kinetics.screening",
+    "class_hints": "kinetics.hints",
 }
 
 _SUBMODULES = {
     "water", "series", "surface", "prediction", "units", "equilibrium",
-    "scenarios", "normalisation", "screening", "design", "errors", "caution",
+    "scenarios", "normalisation", "screening", "hints", "design", "errors", "caution",
 }
 
 __all__ = [
