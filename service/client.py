@@ -378,13 +378,28 @@ class Client(_Base):
         return self._json("POST", "/v1/imports/runs.csv", content=csv_text.encode("utf-8"),
                           headers={"Content-Type": "text/csv"})
 
-    def export_runs_csv(self, substance_id: int) -> str:
-        """The current runs of a substance as CSV in the import format."""
-        return self.request("GET", f"/v1/substances/{substance_id}/runs.csv").text
+    def export_runs(self, substance_id: int, *, format: str = "csv",
+                    as_of: Optional[str] = None) -> Any:
+        """The current runs of a substance: CSV text in the import format, or JSON."""
+        params = self._drop_none({"format": format, "as_of": as_of})
+        r = self.request("GET", f"/v1/substances/{substance_id}/export/runs", params=params)
+        return r.json() if format == "json" else r.text
 
-    def export_fits_csv(self, substance_id: int) -> str:
-        """Per-run fits and surface parameters of a substance as CSV."""
-        return self.request("GET", f"/v1/substances/{substance_id}/fits.csv").text
+    def export_fits(self, substance_id: int, *, format: str = "csv", part: str = "runs",
+                    level: float = 0.95) -> Any:
+        """Per-run fits (``part="runs"``) or surface parameters (``"surface"``): CSV or JSON."""
+        params = {"format": format, "part": part, "level": level}
+        r = self.request("GET", f"/v1/substances/{substance_id}/export/fits", params=params)
+        return r.json() if format == "json" else r.text
+
+    def export_predictions(self, substance_id: int, conditions: Sequence[Mapping[str, Any]], *,
+                           level: float = 0.95, format: str = "csv") -> Any:
+        """Predictions at ``conditions`` (``temperature_C`` or ``temperature_K``, ``pH``,
+        optional ``ionic_strength_M``, ``salinity``): CSV text or JSON."""
+        r = self.request("POST", f"/v1/substances/{substance_id}/export/predictions",
+                         params={"format": format},
+                         json={"conditions": list(conditions), "level": level})
+        return r.json() if format == "json" else r.text
 
     def report_html(self, substance_id: int, *, field_temperature_C: float = 12.0,
                     pH: Optional[Sequence[float]] = None, level: float = 0.95,
@@ -519,11 +534,24 @@ class AsyncClient(_Base):
         return await self._json("POST", "/v1/imports/runs.csv", content=csv_text.encode("utf-8"),
                                 headers={"Content-Type": "text/csv"})
 
-    async def export_runs_csv(self, substance_id: int) -> str:
-        return (await self.request("GET", f"/v1/substances/{substance_id}/runs.csv")).text
+    async def export_runs(self, substance_id: int, *, format: str = "csv",
+                          as_of: Optional[str] = None) -> Any:
+        params = self._drop_none({"format": format, "as_of": as_of})
+        r = await self.request("GET", f"/v1/substances/{substance_id}/export/runs", params=params)
+        return r.json() if format == "json" else r.text
 
-    async def export_fits_csv(self, substance_id: int) -> str:
-        return (await self.request("GET", f"/v1/substances/{substance_id}/fits.csv")).text
+    async def export_fits(self, substance_id: int, *, format: str = "csv", part: str = "runs",
+                          level: float = 0.95) -> Any:
+        params = {"format": format, "part": part, "level": level}
+        r = await self.request("GET", f"/v1/substances/{substance_id}/export/fits", params=params)
+        return r.json() if format == "json" else r.text
+
+    async def export_predictions(self, substance_id: int, conditions: Sequence[Mapping[str, Any]],
+                                 *, level: float = 0.95, format: str = "csv") -> Any:
+        r = await self.request("POST", f"/v1/substances/{substance_id}/export/predictions",
+                               params={"format": format},
+                               json={"conditions": list(conditions), "level": level})
+        return r.json() if format == "json" else r.text
 
     async def report_html(self, substance_id: int, *, field_temperature_C: float = 12.0,
                           pH: Optional[Sequence[float]] = None, level: float = 0.95,

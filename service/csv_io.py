@@ -57,6 +57,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import IO, Any
 
+import numpy as np
+
 from kinetics import units
 from kinetics.errors import InputError
 
@@ -69,6 +71,7 @@ __all__ = [
     "read_runs_csv",
     "parse_runs_csv",
     "run_to_payload",
+    "csv_run_from_stored",
     "ImportSummary",
     "NewSubstanceRefused",
     "store_runs",
@@ -773,6 +776,45 @@ def run_to_payload(run: CsvRun) -> dict[str, Any]:
             rate["se_ln_k"] = run.se_ln_k
         payload["rate"] = rate
     return payload
+
+
+def csv_run_from_stored(run: Any, *, substance: str, study: Any) -> CsvRun:
+    """A stored run version as a :class:`CsvRun`, in the units the laboratory sent.
+
+    Parameters
+    ----------
+    run : service.models.Run
+        The stored version (observations loaded).
+    substance : str
+        Substance name.
+    study : service.models.Study
+        The run's study.
+    """
+    common = dict(
+        first_line=0, substance=substance, laboratory=study.laboratory,
+        replicate_label=run.replicate_label, temperature_K=float(run.temperature_K),
+        pH=float(run.pH), study_reference=study.reference, test_guideline=study.test_guideline,
+        glp=bool(study.glp), buffer=run.buffer, ionic_strength_M=run.ionic_strength_M,
+        cosolvent_percent_v_v=run.cosolvent_percent_v_v, sterile=bool(run.sterile),
+        dark=bool(run.dark), model=run.series_model, notes=run.notes,
+    )
+    if run.kind == "series":
+        t_unit = run.time_unit_sent if run.time_unit_sent in units.TIME_UNITS else "s"
+        c_unit = run.concentration_unit_sent or run.concentration_unit
+        obs = list(run.observations)
+        times = np.atleast_1d(units.time_from_s([o.time_s for o in obs], t_unit))
+        conc = np.atleast_1d(units.concentration_from_canonical([o.concentration for o in obs],
+                                                                c_unit))
+        loq = (None if run.loq is None
+               else float(units.concentration_from_canonical(run.loq, c_unit)))
+        return CsvRun(kind="series", time_unit=t_unit, concentration_unit=c_unit, loq=loq,
+                      observations=tuple(CsvObservation(0, float(t), float(c), bool(o.below_loq))
+                                         for t, c, o in zip(times, conc, obs)), **common)
+    if run.k_per_s is not None:
+        return CsvRun(kind="rate", k_obs=float(run.k_per_s), rate_unit="1/s",
+                      se_ln_k=run.se_ln_k, **common)
+    return CsvRun(kind="rate", dt50=float(run.dt50_s), dt50_unit="s", se_ln_k=run.se_ln_k,
+                  **common)
 
 
 @dataclass(frozen=True)

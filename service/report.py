@@ -38,7 +38,8 @@ __all__ = [
     "gather",
     "runs_as_of",
     "data_version_of",
-    "REPORT_FIT_OPTIONS",
+    "fit_substance",
+    "SubstanceFit",
     "pathway_ln_k",
     "pathway_points",
     "render_report",
@@ -198,7 +199,8 @@ class ReportData:
     fit_options: Mapping[str, Any] = field(default_factory=dict)
 
 
-def run_view(run: Any, *, study: str = "", error_model: str = "constant") -> RunView:
+def run_view(run: Any, *, study: str = "", error_model: str = "constant",
+             model: str | None = None) -> RunView:
     """Build a :class:`RunView` from a stored run, fitting its series.
 
     Parameters
@@ -209,6 +211,8 @@ def run_view(run: Any, *, study: str = "", error_model: str = "constant") -> Run
         Study description shown beside the run.
     error_model : {"constant", "proportional"}
         Error model of the series fit.
+    model : str or None
+        Series model (default: the run's own ``series_model``, SFO if none).
 
     Returns
     -------
@@ -222,7 +226,7 @@ def run_view(run: Any, *, study: str = "", error_model: str = "constant") -> Run
         run_uid=str(run.run_uid), version=int(run.version), label=label, study=study,
         temperature_K=float(run.temperature_K), pH=float(run.pH),
         ionic_strength_M=float(run.ionic_strength_M or 0.0), buffer=run.buffer,
-        model=run.series_model or "SFO",
+        model=model or run.series_model or "SFO",
     )
     if run.kind != "series":
         k = run.k_per_s
@@ -363,17 +367,6 @@ def default_conditions(field_temperature_K: float,
                            float(field_temperature_K), float(p)) for p in pH_values]
 
 
-#: fit options of the report (the service's defaults for a substance's model)
-REPORT_FIT_OPTIONS: dict[str, Any] = {
-    "temperature_model": "arrhenius",
-    "pathways": "auto",
-    "series_model": "run",
-    "error_model": "constant",
-    "ea_prior_J_per_mol": None,
-    "reference_temperature_K": 298.15,
-}
-
-
 def runs_as_of(session: Any, substance_id: int, as_of: dt.datetime | None) -> list[Any]:
     """The run versions of a substance that were current at ``as_of`` (None: now).
 
@@ -401,15 +394,78 @@ def runs_as_of(session: Any, substance_id: int, as_of: dt.datetime | None) -> li
 
 
 def data_version_of(substance_id: int, run_ids: Sequence[int]) -> str:
-    """Fingerprint of a set of run versions, as :func:`service.crud.data_version` forms it."""
-    import hashlib
+    """Fingerprint of a set of run versions (:func:`service.crud.data_version_of`)."""
+    from service import crud
 
-    text = f"substance={substance_id};runs=" + ",".join(str(i) for i in sorted(run_ids))
-    return hashlib.sha256(text.encode()).hexdigest()[:32]
+    return crud.data_version_of(substance_id=substance_id, run_version_ids=list(run_ids))
+
+
+@dataclass(frozen=True)
+class SubstanceFit:
+    """The runs of a substance at a data version and the surface fitted to them."""
+
+    runs: tuple[Any, ...]
+    data_version: str
+    result: Any
+    error: str | None
+    exception: KineticsError | None = None
+
+    def raise_error(self) -> None:
+        """Raise the fitting error, if the surface could not be fitted."""
+        if self.exception is not None:
+            raise self.exception
+
+
+def fit_substance(factory: Any, substance_id: int, *, as_of: dt.datetime | None = None,
+                  options: Any = None) -> SubstanceFit:
+    """Read a substance's runs (current, or current at ``as_of``) and fit its surface.
+
+    For the current data the service's model store is used, so the numbers are those of
+    ``GET /v1/substances/{id}/model`` (and come from its cache when present); for an
+    as-of read the same fitting code runs on the runs of that time.
+
+    Parameters
+    ----------
+    factory : sqlalchemy.orm.sessionmaker
+        Session factory of the service's database.
+    substance_id : int
+        The substance.
+    as_of : datetime or None
+        Time zone aware; None for the current data.
+    options : service.schemas.FitOptions or None
+        Fit options (defaults: the service's defaults).
+
+    Raises
+    ------
+    service.errors.NotFound
+        If the substance does not exist.
+    """
+    from service import crud
+    from service.fitting import compute_fit, run_input_from_model
+    from service.modelstore import load_model
+    from service.schemas import FitOptions
+
+    opts = options or FitOptions()
+    with factory() as session:
+        crud.get_substance(session, substance_id=substance_id)
+        runs = tuple(runs_as_of(session, substance_id, as_of))
+    version = data_version_of(substance_id, [r.id for r in runs])
+    try:
+        result = None
+        if as_of is None:
+            stored = load_model(factory, substance_id=substance_id, options=opts)
+            if stored.data_version == version:
+                result = stored.result
+        if result is None:
+            result = compute_fit([run_input_from_model(r) for r in runs],
+                                 **opts.kinetics_kwargs())
+    except KineticsError as exc:
+        return SubstanceFit(runs, version, None, str(exc), exc)
+    return SubstanceFit(runs, version, result, None)
 
 
 def gather(
-    session: Any,
+    factory: Any,
     substance_id: int,
     *,
     field_temperature_K: float,
@@ -417,7 +473,7 @@ def gather(
     salinity: float = 0.0,
     level: float = 0.95,
     as_of: dt.datetime | None = None,
-    options: Mapping[str, Any] | None = None,
+    options: Any = None,
     reproduce_query: str = "",
     now: dt.datetime | None = None,
 ) -> ReportData:
@@ -425,8 +481,8 @@ def gather(
 
     Parameters
     ----------
-    session : sqlalchemy.orm.Session
-        A read session.
+    factory : sqlalchemy.orm.sessionmaker
+        Session factory of the service's database.
     substance_id : int
         The substance.
     field_temperature_K : float
@@ -439,8 +495,8 @@ def gather(
         Confidence level.
     as_of : datetime or None
         Read the data as they were at this time (UTC-aware); None: current data.
-    options : mapping or None
-        Fit options (defaults: :data:`REPORT_FIT_OPTIONS`).
+    options : service.schemas.FitOptions or None
+        Fit options (default: the service's defaults, as for the model endpoint).
     reproduce_query : str
         Request that reproduces this report, shown in it.
     now : datetime or None
@@ -453,26 +509,28 @@ def gather(
     kinetics.errors.InputError
         If a condition is out of range (temperature, pH, salinity, level).
     """
-    from service import crud
-    from service.fitting import compute_fit, run_input_from_model
-    from service.models import Study
-
     from sqlalchemy import select
+
+    from kinetics.errors import InputError
+    from service import crud
+    from service.models import Study
+    from service.schemas import FitOptions
 
     units.validate_temperature_K(field_temperature_K)
     for p in pH_values:
         units.validate_pH(p)
     if not 0.0 < float(level) < 1.0:
-        from kinetics.errors import InputError
-
         raise InputError(f"level must lie strictly between 0 and 1 (e.g. 0.95), got {level!r}")
-    opts = {**REPORT_FIT_OPTIONS, **(options or {})}
-    substance = crud.get_substance(session, substance_id=substance_id)
-    runs = runs_as_of(session, substance_id, as_of)
-    study_rows = session.scalars(select(Study).where(Study.substance_id == substance_id)
-                                 .order_by(Study.id)).all()
+    if not 0.0 <= float(salinity) <= 45.0:
+        raise InputError(f"salinity {salinity!r} is outside 0-45")
+    opts = options or FitOptions()
+    fitted = fit_substance(factory, substance_id, as_of=as_of, options=opts)
+    with factory() as session:
+        substance = crud.get_substance(session, substance_id=substance_id)
+        study_rows = session.scalars(select(Study).where(Study.substance_id == substance_id)
+                                     .order_by(Study.id)).all()
     counts: dict[int, int] = {}
-    for r in runs:
+    for r in fitted.runs:
         counts[r.study_id] = counts.get(r.study_id, 0) + 1
     studies = [{
         "laboratory": st.laboratory, "test_guideline": st.test_guideline, "glp": st.glp,
@@ -481,14 +539,12 @@ def gather(
     } for st in study_rows]
     study_text = {st.id: st.laboratory + (f", {st.reference}" if st.reference else "")
                   for st in study_rows}
-    views = [run_view(r, study=study_text.get(r.study_id, ""), error_model=opts["error_model"])
-             for r in runs]
-    surface, surface_error = None, None
-    try:
-        result = compute_fit([run_input_from_model(r) for r in runs], **opts)
-        surface = result.surface
-    except KineticsError as exc:
-        surface_error = str(exc)
+    model_of = {}
+    if fitted.result is not None:
+        model_of = {d.get("run_uid"): d.get("series_model") for d in fitted.result.runs}
+    views = [run_view(r, study=study_text.get(r.study_id, ""), error_model=opts.error_model,
+                      model=model_of.get(r.run_uid) or _series_model(r, opts.series_model))
+             for r in fitted.runs]
     conditions = [FieldCondition(
         f"{_temperature_label(field_temperature_K)}, pH {p:g}"
         + (f", salinity {salinity:g}" if salinity else ""),
@@ -497,13 +553,19 @@ def gather(
         substance={"id": substance.id, "name": substance.name, "cas_rn": substance.cas_rn,
                    "smiles": substance.smiles, "substance_class": substance.substance_class,
                    "notes": substance.notes},
-        studies=studies, runs=views, surface=surface, surface_error=surface_error,
+        studies=studies, runs=views,
+        surface=None if fitted.result is None else fitted.result.surface,
+        surface_error=fitted.error,
         field_temperature_K=float(field_temperature_K), conditions=conditions,
-        data_version=data_version_of(substance_id, [r.id for r in runs]),
+        data_version=fitted.data_version,
         generated_at=now or dt.datetime.now(dt.timezone.utc), level=float(level), as_of=as_of,
         reproduce_query=reproduce_query,
-        fit_options={k: v for k, v in opts.items() if v is not None},
+        fit_options={k: v for k, v in opts.model_dump().items() if v is not None},
     )
+
+
+def _series_model(run: Any, choice: str) -> str:
+    return (run.series_model or "SFO") if choice == "run" else choice
 
 
 # ------------------------------------------------------------------ pathway helpers
