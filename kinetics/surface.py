@@ -48,6 +48,13 @@ buffer batch, on another day, scatter by more than their own series says) and
   otherwise. Intervals then use Student's t with :math:`n - p` degrees of
   freedom, which makes them exact for a linear model whose run variances are
   right up to a common factor.
+* When the runs' standard errors come with their degrees of freedom
+  (``se_dof``, set by :meth:`RateMeasurement.from_series_fit`), the
+  :math:`s_i^2` are first moderated towards their common value by empirical
+  Bayes (:func:`moderate_variances`, Smyth 2004): standard errors of short
+  series are noisy, and weighting by them unmoderated makes intervals too
+  narrow (in the project's calibration simulation, 95 % intervals covered
+  about 93 % of true rates without moderation).
 * Without standard errors :math:`s_i = 0`, so :math:`\\hat\\tau^2 = RSS/(n-p)`
   and :math:`q = 1`: the fit is ordinary least squares on :math:`\\ln k`.
 
@@ -67,7 +74,7 @@ from itertools import combinations
 from typing import Any, Mapping, Sequence
 
 import numpy as np
-from scipy import linalg, optimize, stats
+from scipy import linalg, optimize, special, stats
 
 from kinetics import units, water
 from kinetics.errors import ConvergenceError, DataError, IdentifiabilityError, InputError
@@ -83,6 +90,7 @@ __all__ = [
     "DEFAULT_EA_PRIOR_SD_J_PER_MOL",
     "PH_LEVEL_TOLERANCE",
     "TEMPERATURE_LEVEL_TOLERANCE_K",
+    "SE_POOLING_MAX_DOF",
     "RateMeasurement",
     "PathwayCandidate",
     "ParameterInterval",
@@ -90,6 +98,7 @@ __all__ = [
     "fit_surface",
     "arrhenius_ln_k",
     "eyring_ln_k",
+    "moderate_variances",
 ]
 
 #: The three hydrolysis pathways, in the order used for parameters.
@@ -252,6 +261,10 @@ class RateMeasurement:
         Practical salinity (seawater runs) [-]; then ``ionic_strength_M`` is 0.
     label : str
         Free text naming the run (shown in error messages).
+    se_dof : int or None
+        Degrees of freedom behind ``se_ln_k`` (points minus parameters of the
+        series fit), >= 1; None when unknown (the standard error is then
+        taken as exact).
     """
 
     temperature_K: float
@@ -261,6 +274,7 @@ class RateMeasurement:
     ionic_strength_M: float = 0.0
     salinity: float = 0.0
     label: str = ""
+    se_dof: int | None = None
 
     def __post_init__(self) -> None:
         label = str(self.label)
@@ -289,6 +303,16 @@ class RateMeasurement:
                     f"se_ln_k must be a positive standard error of ln k{where}, got {se!r}; "
                     "give None when the run has no standard error"
                 )
+        dof = self.se_dof
+        if dof is not None:
+            if isinstance(dof, bool) or not isinstance(dof, (int, np.integer)) or dof < 1:
+                raise InputError(
+                    f"se_dof must be a whole number of degrees of freedom >= 1{where}, got {dof!r}"
+                )
+            if se is None:
+                raise InputError(f"se_dof was given without se_ln_k{where}")
+            dof = int(dof)
+        object.__setattr__(self, "se_dof", dof)
         ionic = _finite_float(self.ionic_strength_M, "ionic_strength_M", label)
         if ionic < 0.0:
             raise InputError(f"ionic_strength_M must be >= 0 mol/L{where}, got {ionic!r}")
@@ -326,8 +350,8 @@ class RateMeasurement:
         Parameters
         ----------
         fit : kinetics.series.SeriesFit
-            The series fit; its ``k_per_s`` [1/s] and ``se_ln_k`` [-] are used
-            (for a model other than SFO, ``k_per_s`` is ln 2 / DT50).
+            The series fit; its ``k_per_s`` [1/s], ``se_ln_k`` [-] and ``dof``
+            are used (for a model other than SFO, ``k_per_s`` is ln 2 / DT50).
         temperature_K, pH, ionic_strength_M, salinity, label
             As for :class:`RateMeasurement`.
 
@@ -348,6 +372,7 @@ class RateMeasurement:
                 f"the series fit{' ' + repr(label) if label else ''} has no finite standard "
                 f"error of ln k (got {se!r}); refit it with more time points"
             )
+        dof = getattr(fit, "dof", None)
         return cls(
             temperature_K=temperature_K,
             pH=pH,
@@ -356,6 +381,7 @@ class RateMeasurement:
             ionic_strength_M=ionic_strength_M,
             salinity=salinity,
             label=label,
+            se_dof=None if se is None or dof is None or int(dof) < 1 else int(dof),
         )
 
     @classmethod
@@ -412,6 +438,7 @@ class RateMeasurement:
             "ionic_strength_M": self.ionic_strength_M,
             "salinity": self.salinity,
             "label": self.label,
+            "se_dof": self.se_dof,
         }
 
 
@@ -634,6 +661,10 @@ class SurfaceFit:
         (used for the ``uncharacterised_pathway_matters`` flag).
     hidden_pathway_Ea_J_per_mol : float
         Activation energy used to carry those bounds to other temperatures [J/mol].
+    within_run_prior_dof : float or None
+        :math:`d_0` of the within-run variance moderation
+        (:func:`moderate_variances`); None when the runs' standard errors were
+        used as given (no degrees of freedom known, or no standard errors).
     """
 
     pathways: tuple[str, ...]
@@ -657,6 +688,7 @@ class SurfaceFit:
     selection: str = "fixed"
     hidden_pathway_ln_k_ref_max: Mapping[str, float] = field(default_factory=dict)
     hidden_pathway_Ea_J_per_mol: float = EFSA_DEFAULT_EA_J_PER_MOL
+    within_run_prior_dof: float | None = None
 
     # ------------------------------------------------------------------ #
     @property
@@ -938,6 +970,9 @@ class SurfaceFit:
                 k: float(v) for k, v in self.hidden_pathway_ln_k_ref_max.items()
             },
             "hidden_pathway_Ea_J_per_mol": float(self.hidden_pathway_Ea_J_per_mol),
+            "within_run_prior_dof": None
+            if self.within_run_prior_dof is None
+            else float(self.within_run_prior_dof),
         }
 
     @classmethod
@@ -1001,6 +1036,9 @@ class SurfaceFit:
                     str(k): float(v) for k, v in data["hidden_pathway_ln_k_ref_max"].items()
                 },
                 hidden_pathway_Ea_J_per_mol=float(data["hidden_pathway_Ea_J_per_mol"]),
+                within_run_prior_dof=None
+                if data.get("within_run_prior_dof") is None
+                else float(data["within_run_prior_dof"]),
             )
         except (KeyError, TypeError, ValueError, IndexError) as exc:
             if isinstance(exc, InputError):
@@ -1034,6 +1072,74 @@ class _Design:
     has_se: bool
     ph_levels: list[np.ndarray]  # measurement indices per pH level (ascending pH)
     n: int
+    se_prior_dof: float | None = None
+
+
+#: Prior degrees of freedom standing for "pool the within-run variances fully".
+SE_POOLING_MAX_DOF = 1.0e6
+
+
+def _trigamma_inverse(value: float) -> float:
+    """x with polygamma(1, x) = value (> 0); trigamma decreases monotonically."""
+    f = lambda x: float(special.polygamma(1, x)) - value  # noqa: E731
+    lo, hi = 1e-8, 1.0
+    while f(hi) > 0.0:
+        hi *= 10.0
+        if hi > 1e12:
+            return hi
+    return optimize.brentq(f, lo, hi, xtol=1e-12, rtol=1e-12)
+
+
+def moderate_variances(se2: Any, dof: Any) -> tuple[np.ndarray, float]:
+    """Empirical-Bayes moderation of the within-run variances.
+
+    Each run's :math:`s_i^2` (``se_ln_k`` squared, :math:`\nu_i` degrees of
+    freedom) is an estimate from a short series; weighting runs by these noisy
+    values makes the surface intervals too narrow. Following Smyth (Stat.
+    Appl. Genet. Mol. Biol. 3 (2004) article 3, section 6.2), the true
+    variances are taken as draws from a scaled inverse chi-square
+    distribution with :math:`d_0` degrees of freedom and scale :math:`s_0^2`,
+    estimated by moments of :math:`\ln s_i^2`:
+
+    .. math::
+
+        e_i = \ln s_i^2 - \psi(\nu_i/2) + \ln(\nu_i/2), \qquad
+        \psi'(d_0/2) = \widehat{\mathrm{var}}(e) - \overline{\psi'(\nu_i/2)},
+
+        s_0^2 = \exp\bigl(\bar e + \psi(d_0/2) - \ln(d_0/2)\bigr), \qquad
+        \tilde s_i^2 = \frac{d_0 s_0^2 + \nu_i s_i^2}{d_0 + \nu_i}
+
+    (:math:`\psi` digamma, :math:`\psi'` trigamma). When the spread of the
+    :math:`\ln s_i^2` is no larger than their sampling noise alone explains,
+    :math:`d_0` is infinite and every run gets the pooled variance
+    :math:`s_0^2 = \exp(\bar e)` (represented by :data:`SE_POOLING_MAX_DOF`).
+
+    Parameters
+    ----------
+    se2 : array_like
+        Squared standard errors of ln k [-], > 0.
+    dof : array_like
+        Their degrees of freedom, >= 1.
+
+    Returns
+    -------
+    moderated : numpy.ndarray
+        Moderated variances :math:`\tilde s_i^2` [-].
+    prior_dof : float
+        :math:`d_0`, capped at :data:`SE_POOLING_MAX_DOF`.
+    """
+    s2 = np.asarray(se2, dtype=float)
+    nu = np.asarray(dof, dtype=float)
+    if s2.size < 3:
+        return s2.copy(), 0.0
+    e = np.log(s2) - special.digamma(nu / 2.0) + np.log(nu / 2.0)
+    excess = float(np.var(e, ddof=1) - np.mean(special.polygamma(1, nu / 2.0)))
+    if excess > 0.0:
+        d0 = min(2.0 * _trigamma_inverse(excess), SE_POOLING_MAX_DOF)
+    else:
+        d0 = SE_POOLING_MAX_DOF
+    s0_2 = float(np.exp(np.mean(e) + special.digamma(d0 / 2.0) - np.log(d0 / 2.0)))
+    return (d0 * s0_2 + nu * s2) / (d0 + nu), float(d0)
 
 
 def _levels(values: np.ndarray, tol: float) -> list[np.ndarray]:
@@ -1099,9 +1205,12 @@ class _Candidate:
     def model(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         a, e = z[0::2], z[1::2]
         d = self.design
-        terms = a[None, :] + self.lnc - d.u[:, None] * e[None, :] + d.offset[:, None]
-        lnk = _logsumexp(terms, axis=1)
-        w = np.exp(terms - lnk[:, None])
+        terms = a + self.lnc - d.u[:, None] * e + d.offset[:, None]
+        top = terms.max(axis=1)
+        ex = np.exp(terms - top[:, None])
+        tot = ex.sum(axis=1)
+        lnk = top + np.log(tot)
+        w = ex / tot[:, None]
         jac = np.empty((d.n, self.p))
         jac[:, 0::2] = w
         jac[:, 1::2] = -w * d.u[:, None]
@@ -1133,15 +1242,24 @@ class _Candidate:
         sig = np.sqrt(variance)
         npr = self.prior_pos.size
 
+        cache: dict[str, Any] = {"z": None}
+
+        def evaluate(z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+            # least_squares asks for residuals and Jacobian at the same point
+            if cache["z"] is None or not np.array_equal(cache["z"], z):
+                cache["z"] = np.array(z, copy=True)
+                cache["out"] = self.model(z)
+            return cache["out"]
+
         def fun(z: np.ndarray) -> np.ndarray:
-            lnk, _ = self.model(z)
+            lnk, _ = evaluate(z)
             r = (lnk - d.y) / sig
             if npr:
                 r = np.concatenate([r, (z[self.prior_pos] - self.prior_mu) / self.prior_sd])
             return r
 
         def jac(z: np.ndarray) -> np.ndarray:
-            _, j = self.model(z)
+            _, j = evaluate(z)
             j = j / sig[:, None]
             if npr:
                 jp = np.zeros((npr, self.p))
@@ -1149,14 +1267,27 @@ class _Candidate:
                 j = np.vstack([j, jp])
             return j
 
-        res = optimize.least_squares(
-            fun, z0, jac=jac, bounds=self.bounds, method="trf", x_scale="jac",
-            ftol=1e-14, xtol=1e-14, gtol=1e-14, max_nfev=2000,
-        )
-        z = res.x
+        lo, hi = self.bounds
+        # Levenberg-Marquardt first (fast); bounded trust-region reflective when
+        # the unbounded solution leaves the physically possible range
+        z = None
+        try:
+            res = optimize.least_squares(
+                fun, z0, jac=jac, method="lm", x_scale="jac",
+                ftol=1e-12, xtol=1e-12, gtol=1e-12, max_nfev=100 * (self.p + 1),
+            )
+            if res.status > 0 and np.all(np.isfinite(res.x)) and np.all(res.x > lo) and np.all(res.x < hi):
+                z = res.x
+        except (ValueError, FloatingPointError):
+            z = None
+        if z is None:
+            res = optimize.least_squares(
+                fun, np.clip(z0, lo + 1e-6, hi - 1e-6), jac=jac, bounds=self.bounds,
+                method="trf", x_scale="jac", ftol=1e-12, xtol=1e-12, gtol=1e-12, max_nfev=2000,
+            )
+            z = res.x
         # Gauss-Newton polish (the model is linear in the parameters for one
         # pathway, where this lands on the exact least-squares solution)
-        lo, hi = self.bounds
         for _ in range(3):
             r = fun(z)
             j = jac(z)
@@ -1222,7 +1353,7 @@ class _Candidate:
                 if not d.has_se and g(lo) <= 0.0:
                     tau2 = lo
                 else:
-                    tau2 = optimize.brentq(g, lo, hi, xtol=hi * 1e-13, rtol=1e-12, maxiter=200)
+                    tau2 = optimize.brentq(g, lo, hi, xtol=hi * 1e-12, rtol=1e-9, maxiter=200)
                 z = solve_at(tau2)
         # final quantities at tau2
         z, at_bound = self.solve(np.maximum(d.se2 + tau2, _VARIANCE_FLOOR), z)
@@ -1358,12 +1489,21 @@ def _build_design(measurements: Sequence[RateMeasurement], tref: float, model: s
             "give se_ln_k for every run or for none: the surface weights runs by their "
             f"standard errors, and these runs have none: {', '.join(missing[:10])}"
         )
-    se2 = np.array([s * s for s in ses]) if all(given) else np.zeros(len(ses))
+    if all(given):
+        se2 = np.array([s * s for s in ses])
+        dofs = [m.se_dof for m in measurements]
+        if all(d is not None for d in dofs):
+            se2, prior_dof = moderate_variances(se2, np.array(dofs, dtype=float))
+        else:
+            prior_dof = None
+    else:
+        se2, prior_dof = np.zeros(len(ses)), None
     u = tref / T - 1.0
     offset = np.log(T / tref) if model == "eyring" else np.zeros_like(T)
     return _Design(
         T=T, u=u, offset=offset, lnc=_ln_concentrations(T, ph, ionic, sal), y=y, se2=se2,
         has_se=all(given), ph_levels=_levels(ph, PH_LEVEL_TOLERANCE), n=len(measurements),
+        se_prior_dof=prior_dof,
     )
 
 
@@ -1637,4 +1777,5 @@ def fit_surface(
         selection="auto" if fixed is None else "fixed",
         hidden_pathway_ln_k_ref_max=hidden,
         hidden_pathway_Ea_J_per_mol=float(hidden_ea),
+        within_run_prior_dof=design.se_prior_dof,
     )
