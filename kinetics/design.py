@@ -53,6 +53,7 @@ __all__ = [
     "DESIGN_PATHWAYS",
     "ERROR_MODELS",
     "CRITERIA",
+    "EA_PRIOR_CHOICES",
     "GAS_CONSTANT_J_PER_MOL_K",
     "PathwayGuess",
     "KineticsPrior",
@@ -77,8 +78,10 @@ __all__ = [
 DESIGN_PATHWAYS = PATHWAYS
 #: Error models of a concentration series, as in :func:`kinetics.series.fit_series`.
 ERROR_MODELS = ("constant", "proportional")
-#: Design criteria: "local" at the prior guess, or "prior_average" over prior draws.
-CRITERIA = ("local", "prior_average")
+#: Design criteria: "local" at the prior guess, or "prior_median" (median over prior draws).
+CRITERIA = ("local", "prior_median")
+#: When a design may leave an activation energy to the fit's prior.
+EA_PRIOR_CHOICES = ("if_needed", "always", "never")
 
 #: Molar gas constant [J/(mol K)] (CODATA 2018, exact), the surface module's value.
 GAS_CONSTANT_J_PER_MOL_K = _R_SURFACE
@@ -216,9 +219,9 @@ class PathwayGuess:
         _choice(self.pathway, "pathway", DESIGN_PATHWAYS)
         _finite(self.ln_k_ref, f"ln_k_ref of the {self.pathway} pathway")
         ea = _finite(self.Ea_J_per_mol, f"Ea_J_per_mol of the {self.pathway} pathway")
-        if not 0.0 < ea < 400_000.0:
+        if not 1_000.0 <= ea <= 400_000.0:
             raise InputError(
-                f"Ea_J_per_mol {ea!r} of the {self.pathway} pathway is outside 0-400000 J/mol "
+                f"Ea_J_per_mol {ea!r} of the {self.pathway} pathway is outside 1000-400000 J/mol "
                 "(hydrolysis activation energies are typically 40000-120000 J/mol; "
                 "check that the value is in J/mol, not kJ/mol)"
             )
@@ -1373,6 +1376,7 @@ class _Problem:
         self.g = _pathway_vectors(prior, constraints.allowed_temperatures_K) * s  # (P, U, p)
         self.n_evaluated = 0
         self.ridge = 0.0
+        self.ea_from_data_only = False
 
     def variances(self, alloc: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """var(ln k) at the field conditions (m, D, F), inf where not identifiable; dof (m,)."""
@@ -1394,6 +1398,8 @@ class _Problem:
             ok = (ev[..., -1] > 0) & (ev[..., 0] > 1e-10 * ev[..., -1])
             if not self.ridge:
                 ok &= st["feasible"][:, None]
+                if self.ea_from_data_only:
+                    ok &= ~np.any(st["from_prior"], axis=1)[:, None]
             safe = np.where(ok[..., None, None], info, np.eye(self.p))
             rhs = np.broadcast_to(np.swapaxes(self.c, -1, -2), safe.shape[:-1] + (self.c.shape[1],))
             x = np.linalg.solve(safe, rhs)  # (m, D, p, F)
@@ -1407,7 +1413,11 @@ class _Problem:
         return out, dof_out
 
     def score(self, alloc: np.ndarray) -> np.ndarray:
-        """Criterion per allocation: mean over draws of the worst (t sigma)^2 at the field.
+        """Criterion per allocation: the worst (t sigma)^2 over the field conditions.
+
+        With several parameter draws (the first one the guess itself) it is the median
+        over the draws, provided the design works at the guess; the median is not thrown
+        by the few draws under which a planned run becomes unmeasurable.
 
         The Student-t factor makes the criterion the squared half-width of the interval the
         surface fit will report, so that a design does not gain by leaving more activation
@@ -1415,9 +1425,11 @@ class _Problem:
         """
         var, dof = self.variances(alloc)
         t2 = _t_quantile(self.level, dof) ** 2
-        worst = var.max(axis=2) * t2[:, None]
-        with np.errstate(invalid="ignore"):
-            return np.where(np.all(np.isfinite(worst), axis=1), worst.mean(axis=1), np.inf)
+        worst = var.max(axis=2) * t2[:, None]  # (m, D)
+        if worst.shape[1] == 1:
+            return worst[:, 0]
+        med = np.percentile(worst, 50, axis=1, method="higher")
+        return np.where(np.isfinite(worst[:, 0]), med, np.inf)
 
 
 def _compositions(n: int, k: int) -> np.ndarray:
@@ -1470,6 +1482,51 @@ def _exchange(problem: _Problem, k: int, n: int, rng: np.random.Generator, n_sta
         if current < best_score or best is None:
             best, best_score = alloc, current
     return best, best_score
+
+
+def _vessels_needed(
+    problem: _Problem, k: int, n: int, score_n: float | None, var_target: float,
+    max_exhaustive: int, rng: np.random.Generator, ea_prior_allowed: str,
+) -> int | None:
+    """Smallest vessel count (2 to 4n) whose best design meets the target, by bisection.
+
+    Bisection is valid because the best criterion cannot grow with more vessels: a vessel
+    adds information and a degree of freedom.
+    """
+    cache: dict[int, float] = {} if score_n is None else {n: score_n}
+
+    def ok(m: int) -> bool:
+        if m not in cache:
+            cache[m] = _policy_search(problem, k, m, max_exhaustive, rng, ea_prior_allowed)[1]
+        return cache[m] <= var_target
+
+    lo, hi = 2, 4 * n
+    if not ok(hi):
+        return None
+    while lo < hi:
+        mid = (lo + hi) // 2
+        if ok(mid):
+            hi = mid
+        else:
+            lo = mid + 1
+    return lo
+
+
+def _policy_search(
+    problem: _Problem, k: int, n: int, max_exhaustive: int, rng: np.random.Generator,
+    ea_prior_allowed: str,
+) -> tuple[np.ndarray, float, str, bool]:
+    """Search under the Ea-prior policy; the flag says whether the prior had to be used."""
+    if ea_prior_allowed == "always":
+        problem.ea_from_data_only = False
+        return (*_search(problem, k, n, max_exhaustive, rng), False)
+    problem.ea_from_data_only = True
+    alloc, score, method = _search(problem, k, n, max_exhaustive, rng)
+    if math.isfinite(score) or ea_prior_allowed == "never":
+        return alloc, score, method, False
+    problem.ea_from_data_only = False
+    alloc, score, method = _search(problem, k, n, max_exhaustive, rng)
+    return alloc, score, method, True
 
 
 def _search(
@@ -1735,7 +1792,7 @@ class DesignRecommendation:
     naive_evaluation : DesignEvaluation
         Its expected precision.
     criterion : str
-        "local" or "prior_average".
+        "local" or "prior_median".
     search_method : str
         How the design was found.
     n_designs_evaluated : int
@@ -1843,7 +1900,8 @@ def recommend_design(
     level: float = 0.95,
     criterion: str = "local",
     n_prior_draws: int = 32,
-    max_exhaustive: int = 20_000,
+    max_exhaustive: int = 200_000,
+    ea_prior_allowed: str = "if_needed",
     seed: int = 0,
 ) -> DesignRecommendation:
     """Recommend temperatures, pH values, vessels and sampling times for a target precision.
@@ -1876,12 +1934,20 @@ def recommend_design(
     level : float
         Interval level (0.95).
     criterion : str
-        "local" (at the prior guess) or "prior_average" (mean over ``n_prior_draws``
-        draws of the prior: more robust when the guess is rough, slower).
+        "local" (at the prior guess) or "prior_median" (median over the guess and
+        ``n_prior_draws`` draws of the prior: more robust when the guess is rough; the
+        exhaustive limit is divided by the number of draws).
     n_prior_draws : int
-        Prior draws for "prior_average" and for the robustness range.
+        Prior draws for "prior_median" and for the robustness range.
     max_exhaustive : int
         Largest number of allocations searched exhaustively.
+    ea_prior_allowed : str
+        "if_needed" (default): only designs in which the data give every pathway's
+        activation energy (its runs at two or more temperature levels) are searched,
+        unless none exists, when designs leaning on the fit's generic Ea prior are
+        allowed and the reasoning says so; "always": any design; "never": raise
+        :class:`~kinetics.errors.DataError` rather than lean on the prior. A prior Ea
+        pulls the fit towards a generic value, a bias the interval does not show.
     seed : int
         Seed of the prior draws and of the exchange starts.
 
@@ -1909,6 +1975,7 @@ def recommend_design(
         )
     _quantile(level)
     _choice(criterion, "criterion", CRITERIA)
+    _choice(ea_prior_allowed, "ea_prior_allowed", EA_PRIOR_CHOICES)
     n_draws = _count(n_prior_draws, "n_prior_draws", 2)
     max_ex = _count(max_exhaustive, "max_exhaustive", 1)
     rng = np.random.default_rng(seed)
@@ -1945,9 +2012,21 @@ def recommend_design(
     k_cells = len(cand_t)
 
     draws = prior.sample_parameters(n_draws, rng)
-    params = prior.estimates[None, :] if criterion == "local" else draws
+    params = (
+        prior.estimates[None, :] if criterion == "local"
+        else np.vstack([prior.estimates[None, :], draws])
+    )
     problem = _Problem(prior, fields, constraints, cand_t, cand_ph, cand_times, params, level)
-    alloc, score, method = _search(problem, k_cells, n, max_ex, rng)
+    alloc, score, method, leaned_on_prior = _policy_search(
+        problem, k_cells, n, max(1, max_ex // params.shape[0]), rng, ea_prior_allowed
+    )
+    if not math.isfinite(score) and ea_prior_allowed == "never":
+        raise DataError(
+            f"no allocation of {n} vessel(s) to the measurable cells lets the data give the "
+            f"activation energy of every pathway ({', '.join(prior.pathway_names)}): each "
+            "pathway needs measurable runs at two or more temperatures at the pH levels it "
+            "dominates; add vessels or temperatures, or allow the Ea prior"
+        )
     if not math.isfinite(score):
         frac = cells["frac"][keep]
         shares = ", ".join(
@@ -1986,15 +2065,10 @@ def recommend_design(
         prior, fields, constraints, cand_t, cand_ph, cand_times, prior.estimates[None, :], level
     )
     var_target = (math.log(target) / 2.0) ** 2  # the score is (t sigma)^2
-    needed = None
-    for m_vessels in range(1, 4 * n + 1):
-        if m_vessels == n and criterion == "local":
-            best = score
-        else:
-            _, best, _ = _search(local, k_cells, m_vessels, min(max_ex, 5_000), rng)
-        if best <= var_target:
-            needed = m_vessels
-            break
+    needed = _vessels_needed(
+        local, k_cells, n, score if criterion == "local" else None, var_target,
+        min(max_ex, 5_000), rng, ea_prior_allowed,
+    )
 
     naive = naive_design(prior, constraints)
     naive_ev = evaluate_design(naive, prior, fields, constraints, level=level)
@@ -2003,7 +2077,7 @@ def recommend_design(
     )
     reasoning = _reasoning(
         prior, fields, constraints, ev, target, met, needed, naive_ev, prelim, excluded,
-        method, prior_range, criterion,
+        method, prior_range, criterion, leaned_on_prior,
     )
     return DesignRecommendation(
         runs=ev.runs,
@@ -2031,7 +2105,7 @@ def _reasoning(
     prior: KineticsPrior, fields: tuple[FieldCondition, ...], constraints: LabConstraints,
     ev: DesignEvaluation, target: float, met: np.ndarray, needed: int | None,
     naive_ev: DesignEvaluation, prelim: PreliminaryTestAdvice, excluded: list[str],
-    method: str, prior_range: np.ndarray, criterion: str,
+    method: str, prior_range: np.ndarray, criterion: str, leaned_on_prior: bool,
 ) -> tuple[str, ...]:
     out: list[str] = []
     if prelim.recommended:
@@ -2083,10 +2157,14 @@ def _reasoning(
             f"draws; the design was chosen by the {criterion} criterion)."
         )
     if ev.ea_from_prior:
+        mean, sd = prior.fit_ea_prior
         out.append(
-            "The design measures the pathway(s) " + ", ".join(ev.ea_from_prior)
-            + " at one temperature only, so the surface fit must take their activation energy "
-            "from the prior; pass the same Ea prior to the fit."
+            "The runs the surface fit assigns to the pathway(s) " + ", ".join(ev.ea_from_prior)
+            + " are at one temperature level only, so the fit takes their activation energy "
+            f"from the prior ({mean:.0f} ± {sd:.0f} J/mol); pass the same prior to the fit. "
+            "A prior pulls the fit towards a generic value, a bias the interval does not show"
+            + (": no design within the constraints lets the data give every activation energy."
+               if leaned_on_prior else ".")
         )
     if needed is None:
         out.append(
@@ -2166,6 +2244,20 @@ class SimulationSummary:
         )
 
 
+def _fit_many(series: list, error_model: str, fit_sfo_batch: Any) -> list:
+    """Batch SFO fits; a series that cannot be fitted gives None (found by halving)."""
+    if not series:
+        return []
+    try:
+        return list(fit_sfo_batch(series, time_unit="s", error_model=error_model))
+    except KineticsError:
+        if len(series) == 1:
+            return [None]
+    half = len(series) // 2
+    return (_fit_many(series[:half], error_model, fit_sfo_batch)
+            + _fit_many(series[half:], error_model, fit_sfo_batch))
+
+
 def simulate_design(
     runs: Sequence[DesignRun],
     truth: KineticsPrior,
@@ -2208,7 +2300,7 @@ def simulate_design(
     SimulationSummary
     """
     from kinetics.prediction import predict
-    from kinetics.series import fit_series, fit_sfo_batch
+    from kinetics.series import fit_sfo_batch
     from kinetics.surface import RateMeasurement, fit_surface
 
     n_studies = _count(n_studies, "n_studies", 1)
@@ -2249,16 +2341,7 @@ def simulate_design(
             if keep.sum() >= 3:
                 series.append((times[keep], obs[keep]))
                 where.append(i)
-        try:
-            fits = fit_sfo_batch(series, time_unit="s", error_model=constraints.error_model)
-        except KineticsError:
-            fits = []
-            for t_s, c in series:
-                try:
-                    fits.append(fit_series(t_s, c, time_unit="s", model="SFO",
-                                           error_model=constraints.error_model))
-                except KineticsError:
-                    fits.append(None)
+        fits = _fit_many(series, constraints.error_model, fit_sfo_batch)
         measurements = []
         for i, fit in zip(where, fits):
             if fit is None:
