@@ -22,6 +22,9 @@ COMMAND_MODULES: list[str] = [
     "service.commands.db",
     "service.commands.keys",
     "service.commands.backup",
+    "service.commands.importcsv",
+    "service.commands.report",
+    "service.commands.calc",
 ]
 
 

@@ -218,6 +218,18 @@ class _Base:
         return {k: v for k, v in values.items() if v is not None}
 
 
+def _report_params(field_temperature_C: float, pH: Optional[Sequence[float]], salinity: float,
+                   level: float, as_of: Optional[str], fit_options: Mapping[str, Any]) -> dict:
+    params: dict[str, Any] = {"field_temperature_C": field_temperature_C, "salinity": salinity,
+                              "level": level}
+    if pH:
+        params["pH"] = list(pH)
+    if as_of:
+        params["as_of"] = as_of
+    params.update({k: v for k, v in fit_options.items() if v is not None})
+    return params
+
+
 def _page(model: type[M], data: Any) -> Page[M]:
     return Page[model].model_validate(data)  # type: ignore[valid-type]
 
@@ -402,14 +414,15 @@ class Client(_Base):
         return r.json() if format == "json" else r.text
 
     def report_html(self, substance_id: int, *, field_temperature_C: float = 12.0,
-                    pH: Optional[Sequence[float]] = None, level: float = 0.95,
-                    as_of: Optional[str] = None) -> str:
-        """The HTML report of a substance."""
-        params: dict[str, Any] = {"field_temperature_C": field_temperature_C, "level": level}
-        if pH:
-            params["pH"] = list(pH)
-        if as_of:
-            params["as_of"] = as_of
+                    pH: Optional[Sequence[float]] = None, salinity: float = 0.0,
+                    level: float = 0.95, as_of: Optional[str] = None,
+                    **fit_options: Any) -> str:
+        """The HTML report of a substance.
+
+        ``fit_options`` are the model's fit options (``temperature_model``, ``pathways``,
+        ``series_model``, ``error_model``, ...); ``as_of`` an ISO 8601 time with zone.
+        """
+        params = _report_params(field_temperature_C, pH, salinity, level, as_of, fit_options)
         return self.request("GET", f"/v1/substances/{substance_id}/report", params=params,
                             headers={"Accept": "text/html"}).text
 
@@ -554,12 +567,9 @@ class AsyncClient(_Base):
         return r.json() if format == "json" else r.text
 
     async def report_html(self, substance_id: int, *, field_temperature_C: float = 12.0,
-                          pH: Optional[Sequence[float]] = None, level: float = 0.95,
-                          as_of: Optional[str] = None) -> str:
-        params: dict[str, Any] = {"field_temperature_C": field_temperature_C, "level": level}
-        if pH:
-            params["pH"] = list(pH)
-        if as_of:
-            params["as_of"] = as_of
+                          pH: Optional[Sequence[float]] = None, salinity: float = 0.0,
+                          level: float = 0.95, as_of: Optional[str] = None,
+                          **fit_options: Any) -> str:
+        params = _report_params(field_temperature_C, pH, salinity, level, as_of, fit_options)
         return (await self.request("GET", f"/v1/substances/{substance_id}/report", params=params,
                                    headers={"Accept": "text/html"})).text

@@ -36,6 +36,7 @@ __all__ = [
     "fit_surface_for_runs",
     "default_conditions",
     "gather",
+    "gather_from_csv",
     "runs_as_of",
     "data_version_of",
     "fit_substance",
@@ -564,8 +565,89 @@ def gather(
     )
 
 
+def gather_from_csv(
+    runs: Sequence[Any],
+    *,
+    field_temperature_K: float,
+    pH_values: Sequence[float] = DEFAULT_FIELD_PH,
+    salinity: float = 0.0,
+    level: float = 0.95,
+    options: Any = None,
+    source: str = "",
+    now: dt.datetime | None = None,
+) -> ReportData:
+    """Everything :func:`render_report` needs, from runs read from a CSV file (no database).
+
+    The fit is the one the stateless calculation of the service makes from the same runs.
+
+    Parameters
+    ----------
+    runs : sequence of service.csv_io.CsvRun
+        Runs of one substance.
+    source : str
+        Where the runs came from (shown as the data version with the file's fingerprint).
+    field_temperature_K, pH_values, salinity, level, options, now
+        As for :func:`gather`.
+    """
+    import hashlib
+
+    from kinetics.errors import InputError
+    from service.csv_io import run_to_payload
+    from service.fitting import compute_fit, run_input_from_payload
+    from service.schemas import FitOptions, RunData
+
+    names = sorted({r.substance for r in runs})
+    if len(names) != 1:
+        raise InputError(f"a report covers one substance; the runs name {len(names)}: "
+                         f"{', '.join(names)}")
+    units.validate_temperature_K(field_temperature_K)
+    for p in pH_values:
+        units.validate_pH(p)
+    opts = options or FitOptions()
+    payloads = [run_to_payload(r) for r in runs]
+    data = [RunData(**p) for p in payloads]
+    surface, error = None, None
+    model_of: dict[int, str] = {}
+    try:
+        result = compute_fit([run_input_from_payload(d, i) for i, d in enumerate(data)],
+                             **opts.kinetics_kwargs())
+        surface = result.surface
+        model_of = {i: d.get("series_model") for i, d in enumerate(result.runs)}
+    except KineticsError as exc:
+        error = str(exc)
+    views = []
+    for i, r in enumerate(runs):
+        v = run_view_from_csv(r, error_model=opts.error_model)
+        wanted = model_of.get(i) or _series_model(r, opts.series_model)
+        if r.kind == "series" and wanted != v.model:
+            from dataclasses import replace
+
+            v = run_view_from_csv(replace(r, model=wanted), error_model=opts.error_model)
+        views.append(v)
+    fingerprint = hashlib.sha256(repr(payloads).encode()).hexdigest()[:32]
+    studies: dict[tuple, dict[str, Any]] = {}
+    for r in runs:
+        st = studies.setdefault(r.study_key, {
+            "laboratory": r.laboratory, "test_guideline": r.test_guideline, "glp": r.glp,
+            "reference": r.study_reference, "n_runs": 0})
+        st["n_runs"] += 1
+    conditions = [FieldCondition(
+        f"{_temperature_label(field_temperature_K)}, pH {p:g}"
+        + (f", salinity {salinity:g}" if salinity else ""),
+        float(field_temperature_K), float(p), 0.0, float(salinity)) for p in pH_values]
+    return ReportData(
+        substance={"name": names[0], "notes": f"Runs read from {source}." if source else None},
+        studies=list(studies.values()), runs=views, surface=surface, surface_error=error,
+        field_temperature_K=float(field_temperature_K), conditions=conditions,
+        data_version=f"file {fingerprint}", generated_at=now or dt.datetime.now(dt.timezone.utc),
+        level=float(level), fit_options={k: v for k, v in opts.model_dump().items()
+                                         if v is not None},
+    )
+
+
 def _series_model(run: Any, choice: str) -> str:
-    return (run.series_model or "SFO") if choice == "run" else choice
+    own = getattr(run, "series_model", None) or getattr(run, "model", None)
+    return (own or "SFO") if choice == "run" else choice
 
 
 # ------------------------------------------------------------------ pathway helpers
