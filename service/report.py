@@ -855,6 +855,7 @@ th { text-align:left; font-weight:600; border-bottom: 1.5px solid var(--ink); pa
   vertical-align: bottom; }
 td { border-bottom: 1px solid var(--rule); padding: 3px 6px; vertical-align: top; }
 td.num, th.num { text-align: right; white-space: nowrap; }
+td.nowrap { white-space: nowrap; }
 tr.flagged td { background: #fbf3df; }
 .flag { display:inline-block; white-space: normal; border:1px solid #8a6d1f; border-radius: 2px; padding: 0 4px; margin: 1px 2px 1px 0;
   font-size: 11.5px; color:#5d4a12; background:#fff8e1; }
@@ -956,12 +957,13 @@ def _summary_section(data: ReportData) -> str:
     if data.substance.get("notes"):
         out.append(f"<p>{_esc(data.substance['notes'])}</p>")
     if data.studies:
-        out.append("<table><thead><tr><th>laboratory</th><th>test guideline</th><th>GLP</th>"
-                   "<th>reference</th><th>dates</th><th class=num>runs</th></tr></thead><tbody>")
-        for st in data.studies:
+        out.append("<table><thead><tr><th>study</th><th>laboratory</th><th>test guideline</th>"
+                   "<th>GLP</th><th>reference</th><th>dates</th><th class=num>runs</th></tr>"
+                   "</thead><tbody>")
+        for number, st in enumerate(data.studies, start=1):
             dates = " – ".join(str(d) for d in (st.get("start_date"), st.get("end_date")) if d)
             out.append(
-                f"<tr><td>{_esc(st.get('laboratory'))}</td><td>{_esc(st.get('test_guideline') or '–')}"
+                f"<tr><td>S{number}</td><td>{_esc(st.get('laboratory'))}</td><td>{_esc(st.get('test_guideline') or '–')}"
                 f"</td><td>{'yes' if st.get('glp') else 'no'}</td>"
                 f"<td>{_esc(st.get('reference') or '–')}</td><td>{_esc(dates or '–')}</td>"
                 f"<td class=num>{_esc(st.get('n_runs', ''))}</td></tr>")
@@ -974,8 +976,11 @@ def _summary_section(data: ReportData) -> str:
         f"{len(data.runs) - n_series} reported rate constant(s); temperatures "
         f"{', '.join(_temperature_label(t) for t in temps) or '–'}; pH "
         f"{', '.join(f'{p:g}' for p in phs) or '–'}.</p>")
+    study_no = {_study_text(st): f"S{i}" for i, st in enumerate(data.studies, start=1)}
+    several = len(data.studies) > 1
     out.append(
-        "<table><thead><tr><th>run</th><th>study</th><th class=num>T [°C]</th><th class=num>pH</th>"
+        "<table><thead><tr><th>run</th>" + ("<th>study</th>" if several else "") +
+        "<th class=num>T [°C]</th><th class=num>pH</th>"
         "<th>buffer</th><th class=num>I [mol/L]</th><th>data</th><th>model</th>"
         "<th class=num>k [1/d]</th><th class=num>DT50 [d]</th>"
         f"<th class=num>DT50 {data.level * 100:g} % CI [d]</th><th class=num>χ² error [%]</th>"
@@ -1002,10 +1007,12 @@ def _summary_section(data: ReportData) -> str:
             else:
                 ci = "–"
         out.append(
-            f"<tr><td>{_esc(r.label)}</td><td>{_esc(r.study)}</td><td class=num>{_c(r.temperature_K)}"
+            f"<tr><td>{_esc(r.label)}</td>"
+            + (f"<td>{_esc(study_no.get(r.study, r.study))}</td>" if several else "") +
+            f"<td class=num>{_c(r.temperature_K)}"
             f"</td><td class=num>{format_number(r.pH, 3)}</td><td>{_esc(r.buffer or '–')}</td>"
             f"<td class=num>{format_number(r.ionic_strength_M, 2) if r.ionic_strength_M else '–'}</td>"
-            f"<td>{what}</td><td>{model}</td><td class=num>{_per_day(r.k_per_s)}</td>"
+            f"<td class=nowrap>{what}</td><td>{model}</td><td class=num>{_per_day(r.k_per_s)}</td>"
             f"<td class=num>{dt50}</td><td class=num>{ci}</td><td class=num>{chi}</td></tr>")
     out.append("</tbody></table>")
     failed = [r for r in data.runs if r.fit_error]
@@ -1013,6 +1020,12 @@ def _summary_section(data: ReportData) -> str:
         out.append(f'<div class="problem">Run {_esc(r.label)} could not be fitted: '
                    f"{_esc(r.fit_error)}</div>")
     return "\n".join(out)
+
+
+def _study_text(study: Mapping[str, Any]) -> str:
+    """The short description of a study that :class:`RunView` carries."""
+    ref = study.get("reference")
+    return f"{study.get('laboratory')}" + (f", {ref}" if ref else "")
 
 
 def _z(level: float) -> float:
@@ -1075,15 +1088,18 @@ def _surface_section(data: ReportData) -> str:
     cands = getattr(surf, "candidates", None)
     if cands:
         out.append("<h3>Pathway subsets compared</h3><table><thead><tr><th>pathways</th>"
-                   "<th class=num>AICc</th></tr></thead><tbody>")
+                   "<th class=num>AICc</th><th>note</th></tr></thead><tbody>")
         for cand in cands:
             paths = _get(cand, "pathways")
             aicc = _get(cand, "aicc")
             paths_text = ", ".join(paths) if isinstance(paths, (list, tuple)) else str(paths)
             chosen = tuple(paths) == tuple(surf.pathways) if isinstance(paths, (list, tuple)) \
                 else False
+            note = "" if _get(cand, "identifiable") in (None, True) else \
+                f"not identifiable: {_get(cand, 'reason') or 'see the fit'}"
             out.append(f"<tr><td>{_esc(paths_text)}{' (chosen)' if chosen else ''}</td>"
-                       f"<td class=num>{format_number(aicc, 4)}</td></tr>")
+                       f"<td class=num>{format_number(aicc, 4)}</td>"
+                       f'<td class="small">{_esc(note)}</td></tr>')
         out.append("</tbody></table>")
     return "\n".join(out)
 

@@ -395,9 +395,10 @@ def plot(
         legend_rows = _legend_rows([*[("band", b) for b in bands if b.label],
                                     *[("series", x) for x in series if x.label]],
                                    width - left - right)
-        height = int(height + 17 * len(legend_rows) + 8)
     frame = _Frame(left, top, max(width - left - right, 60.0), max(height - top - bottom, 60.0),
                    x0, x1, y0, y1, x_axis.log, y_axis.log)
+    if legend_rows:  # the picture grows below the frame for a bottom legend
+        height = int(height + 17 * len(legend_rows) + 6)
 
     out: list[str] = []
     out.append(
@@ -473,7 +474,7 @@ def plot(
     if show_legend and legend_position == "right":
         out.append(_legend(frame.left + frame.width + 12, frame.top, legend_w - 4, series, bands))
     elif show_legend:
-        out.append(_legend_bottom(frame.left, frame.top + frame.height + bottom + 4, legend_rows))
+        out.append(_legend_bottom(frame.left, frame.top + frame.height + bottom - 4, legend_rows))
     out.append("</svg>")
     return "".join(out)
 

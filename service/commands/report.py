@@ -122,10 +122,13 @@ def _report(args: argparse.Namespace) -> int:
         _settings, engine, factory = open_database(args)
         try:
             sid, name = _resolve_substance(factory, args.substance)
+            from service.api.routes.reports import ReportQuery, reproduce_query
+
             now = dt.datetime.now(dt.timezone.utc)
-            query = (f"/v1/substances/{sid}/report?field_temperature_C="
-                     f"{args.field_temperature_C:g}&as_of="
-                     f"{(as_of or now).astimezone(dt.timezone.utc).isoformat()}")
+            q = ReportQuery(field_temperature_C=args.field_temperature_C, salinity=args.salinity,
+                            level=args.level, temperature_model=args.temperature_model,
+                            pathways=args.pathways)
+            query = reproduce_query(sid, q, as_of or now, pH_values)
             data = report.gather(factory, sid, field_temperature_K=t_K, pH_values=pH_values,
                                  salinity=args.salinity, level=args.level, as_of=as_of,
                                  options=_options(args), reproduce_query=query, now=now)
