@@ -106,6 +106,10 @@ _MAX_PATHWAY_SE_LN_K = 0.3
 # A pathway carrying less than this share of k_obs in every run cannot be fitted (the
 # identifiability rule of kinetics.surface.fit_surface).
 _MIN_CONTRIBUTION = 1e-3
+# A simulated run whose fitted ln k has a standard error above this is reported as "no
+# measurable decline" and left out of the surface fit, as a laboratory would report it
+# (common practice, no source).
+_MAX_REPORTED_SE_LN_K = 1.0
 # Preliminary test conditions of OECD Test Guideline 111 (2004): 50 °C, 5 days, pH 4/7/9.
 _PRELIM_TEMPERATURE_K = 323.15
 _PRELIM_DURATION_S = 5.0 * 86400.0
@@ -2274,7 +2278,9 @@ def simulate_design(
     from ``truth`` (its between-run scatter included), concentrations
     :math:`C_0 e^{-kt}` with Gaussian analytical noise of the constraints' error model, and
     samples observed below the LOQ are dropped. The series are fitted with
-    :func:`kinetics.series.fit_sfo_batch` (same error model), the rates with
+    :func:`kinetics.series.fit_sfo_batch` (same error model); a series that cannot be
+    fitted, or whose ln k has a standard error above 1 (no measurable decline, reported
+    as such by a laboratory; common practice, no source), is left out; the rates with
     :func:`kinetics.surface.fit_surface` (pathways and Ea prior of ``truth``), and the DT50
     interval at the field condition comes from :func:`kinetics.prediction.predict`.
 
@@ -2344,7 +2350,7 @@ def simulate_design(
         fits = _fit_many(series, constraints.error_model, fit_sfo_batch)
         measurements = []
         for i, fit in zip(where, fits):
-            if fit is None:
+            if fit is None or not fit.se_ln_k <= _MAX_REPORTED_SE_LN_K:
                 continue
             try:
                 measurements.append(RateMeasurement.from_series_fit(
