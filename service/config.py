@@ -44,6 +44,9 @@ class Settings(BaseSettings):
     max_points_per_series: int = Field(default=10_000, ge=3)
     max_conditions_per_request: int = Field(default=200_000, ge=100_000)
     max_runs_per_batch: int = Field(default=5_000, ge=1)
+    max_montecarlo_evaluations: int = Field(
+        default=50_000_000, ge=1_000_000, description="Monte Carlo draws x conditions per request"
+    )
     anonymous_read: bool = False
     api_key_pepper: str = Field(default="", repr=False)  # server secret in key hashes (service.security)
     idempotency_ttl_s: float = Field(default=24 * 3600.0, gt=0)

@@ -55,6 +55,7 @@ __all__ = [
     "list_runs",
     "current_runs",
     "data_version",
+    "data_version_of",
     "get_cached_fit",
     "store_fit",
     "list_audit_events",
@@ -522,6 +523,12 @@ def data_version(session: Session, *, substance_id: int) -> str:
         .where(Run.substance_id == substance_id, Run.status == "current")
         .order_by(Run.id)
     ).all()
+    return data_version_of(substance_id=substance_id, run_version_ids=ids)
+
+
+def data_version_of(*, substance_id: int, run_version_ids: Sequence[int]) -> str:
+    """The data version for a known set of current run version ids."""
+    ids = sorted(int(i) for i in run_version_ids)
     text = f"substance={substance_id};runs=" + ",".join(str(i) for i in ids)
     return hashlib.sha256(text.encode()).hexdigest()[:32]
 

@@ -497,3 +497,278 @@ def run_public(run: Any) -> RunPublic:
         valid_to=run.valid_to,
         withdrawn_reason=run.withdrawn_reason,
     )
+
+
+# --------------------------------------------------------------------------- fits
+TemperatureModel = Literal["arrhenius", "eyring"]
+SeriesModelChoice = Literal["run", "SFO", "FOMC", "DFOP", "HS"]
+ErrorModel = Literal["constant", "proportional"]
+
+_PATHWAY_NAMES = ("acid", "neutral", "base")
+
+
+def check_pathways(value: str) -> str:
+    """``"auto"`` or a comma-separated set drawn from acid, neutral, base (normalised order)."""
+    text = value.strip().lower()
+    if text == "auto":
+        return "auto"
+    parts = [p.strip() for p in text.split(",") if p.strip()]
+    unknown = [p for p in parts if p not in _PATHWAY_NAMES]
+    if not parts or unknown:
+        raise ValueError(
+            f"pathways {value!r} is not 'auto' or a comma-separated list drawn from "
+            "acid, neutral, base (e.g. 'acid,base')"
+        )
+    if len(set(parts)) != len(parts):
+        raise ValueError(f"pathways {value!r} names a pathway twice")
+    return ",".join(p for p in _PATHWAY_NAMES if p in parts)
+
+
+class FitOptions(Strict):
+    """How the surface is fitted. The defaults suit a standard pH 4/7/9 study."""
+
+    temperature_model: TemperatureModel = "arrhenius"
+    pathways: str = Field(default="auto", description="'auto' (AICc) or e.g. 'acid,neutral,base'")
+    series_model: SeriesModelChoice = Field(
+        default="run", description="'run': each run's own series_model (SFO if none); or one model for all"
+    )
+    error_model: ErrorModel = "constant"
+    ea_prior_mean_J_per_mol: Optional[float] = Field(default=None, gt=0, lt=400_000)
+    ea_prior_sd_J_per_mol: Optional[float] = Field(default=None, gt=0, lt=400_000)
+    reference_temperature_K: float = Field(default=298.15, ge=273.15, le=373.15)
+
+    @field_validator("pathways")
+    @classmethod
+    def _pathways(cls, v: str) -> str:
+        return check_pathways(v)
+
+    @model_validator(mode="after")
+    def _prior(self) -> "FitOptions":
+        if (self.ea_prior_mean_J_per_mol is None) != (self.ea_prior_sd_J_per_mol is None):
+            raise ValueError(
+                "give both ea_prior_mean_J_per_mol and ea_prior_sd_J_per_mol, or neither"
+            )
+        return self
+
+    @property
+    def ea_prior(self) -> Optional[tuple[float, float]]:
+        if self.ea_prior_mean_J_per_mol is None:
+            return None
+        return (self.ea_prior_mean_J_per_mol, self.ea_prior_sd_J_per_mol)
+
+    def kinetics_kwargs(self) -> dict[str, Any]:
+        return {
+            "temperature_model": self.temperature_model,
+            "pathways": self.pathways,
+            "series_model": self.series_model,
+            "error_model": self.error_model,
+            "ea_prior_J_per_mol": self.ea_prior,
+            "reference_temperature_K": self.reference_temperature_K,
+        }
+
+
+class ParameterPublic(Public):
+    name: str
+    unit: str
+    estimate: Optional[float]
+    standard_error: Optional[float]
+    ci_low: Optional[float]
+    ci_high: Optional[float]
+
+
+class SeriesParameterPublic(Public):
+    name: str
+    estimate: Optional[float]
+    standard_error: Optional[float]
+
+
+class RunDiagnosticsPublic(Public):
+    run_uid: Optional[str] = Field(description="stored run id (null in a stateless calculation)")
+    version: Optional[int]
+    label: str
+    kind: Literal["series", "rate"]
+    temperature_K: float
+    pH: float
+    ionic_strength_M: float
+    series_model: Optional[str]
+    k_per_s: Optional[float]
+    se_ln_k: Optional[float]
+    dt50_s: Optional[float]
+    dt90_s: Optional[float]
+    chi2_error_level_percent: Optional[float]
+    n_points: Optional[int]
+    dof: Optional[int]
+    parameters: list[SeriesParameterPublic]
+    aicc: Optional[float]
+    time_s: list[Optional[float]]
+    observed: list[Optional[float]]
+    fitted: list[Optional[float]]
+    residuals: list[Optional[float]]
+    p_rate_positive: dict[str, Optional[float]]
+    ln_k_residual_from_surface: Optional[float]
+
+
+class CandidatePublic(Public):
+    pathways: list[str]
+    identifiable: bool
+    reason: str
+    n_params: int
+    rss: Optional[float]
+    aicc: Optional[float]
+    ea_from_prior: list[str]
+    selected: bool
+
+
+class SurfaceModelPublic(Public):
+    """A fitted pH-temperature rate surface with its diagnostics."""
+
+    substance_id: Optional[int] = None
+    substance_name: Optional[str] = None
+    data_version: Optional[str] = Field(default=None, description="fingerprint of the run versions used")
+    fitted_at: Optional[dt.datetime] = None
+    cached: Optional[bool] = None
+    fit_options: FitOptions
+    temperature_model: str
+    pathways_supported: list[str]
+    uncharacterised_pathways: list[str]
+    ea_from_prior: list[str]
+    selection: str
+    level: float
+    parameters: list[ParameterPublic]
+    parameter_names: list[str]
+    covariance: list[list[Optional[float]]]
+    dof: int
+    residual_scale: Optional[float]
+    between_run_sd_ln_k: Optional[float]
+    n_measurements: int
+    reference_temperature_K: float
+    temperature_range_K: list[float]
+    pH_range: list[float]
+    candidates: list[CandidatePublic]
+    runs: list[RunDiagnosticsPublic]
+    flags: list[str]
+    caution: str
+
+
+# --------------------------------------------------------------------------- predictions
+class Condition(Strict):
+    """One field condition."""
+
+    temperature_C: Optional[float] = Field(default=None, description="water temperature [°C]")
+    temperature_K: Optional[float] = Field(default=None, description="water temperature [K]")
+    pH: float = Field(description="field pH (total scale when salinity is given)")
+    ionic_strength_M: Optional[float] = Field(default=None, ge=0, description="[mol/L], fresh water")
+    salinity: Optional[float] = Field(default=None, ge=0, description="practical salinity, sea or brackish water")
+
+
+class ConditionColumns(Strict):
+    """Field conditions as columns of equal length (compact for many conditions)."""
+
+    temperature_C: Optional[list[float]] = None
+    temperature_K: Optional[list[float]] = None
+    pH: list[float]
+    ionic_strength_M: Optional[list[float]] = None
+    salinity: Optional[list[float]] = None
+
+
+class PredictionOptions(Strict):
+    level: float = Field(default=0.95, gt=0, lt=1, description="level of both intervals")
+    method: Literal["delta", "montecarlo"] = "delta"
+    n_draws: int = Field(default=10_000, ge=100, le=1_000_000, description="Monte Carlo draws")
+    seed: Optional[int] = Field(default=None, ge=0, description="Monte Carlo seed (same seed, same numbers)")
+    layout: Literal["rows", "columns"] = Field(
+        default="rows", description="'rows': one object per condition; 'columns': one array per quantity"
+    )
+
+
+class PredictionRequest(PredictionOptions):
+    """Field conditions to predict at: give ``conditions`` (objects) or ``columns``."""
+
+    conditions: Optional[list[Condition]] = None
+    columns: Optional[ConditionColumns] = None
+    fit_options: FitOptions = Field(default_factory=FitOptions)
+
+    @model_validator(mode="after")
+    def _one(self) -> "PredictionRequest":
+        if (self.conditions is None) == (self.columns is None):
+            raise ValueError("give the field conditions either as conditions or as columns")
+        return self
+
+
+class CalculationRequest(PredictionOptions):
+    """Runs to fit without storing them, and optional field conditions to predict at."""
+
+    runs: list[RunData] = Field(min_length=1)
+    conditions: Optional[list[Condition]] = None
+    columns: Optional[ConditionColumns] = None
+    fit_options: FitOptions = Field(default_factory=FitOptions)
+
+    @model_validator(mode="after")
+    def _at_most_one(self) -> "CalculationRequest":
+        if self.conditions is not None and self.columns is not None:
+            raise ValueError("give the field conditions as conditions or as columns, not both")
+        return self
+
+
+class PredictionRow(Public):
+    temperature_K: float
+    temperature_C: float
+    pH: float
+    ionic_strength_M: float
+    salinity: float
+    k_per_s: Optional[float]
+    k_ci_low_per_s: Optional[float]
+    k_ci_high_per_s: Optional[float]
+    k_pi_low_per_s: Optional[float]
+    k_pi_high_per_s: Optional[float]
+    ln_k: Optional[float]
+    se_ln_k: Optional[float]
+    dt50_s: Optional[float]
+    dt50_ci_low_s: Optional[float]
+    dt50_ci_high_s: Optional[float]
+    dt50_pi_low_s: Optional[float]
+    dt50_pi_high_s: Optional[float]
+    dt90_s: Optional[float]
+    dt90_ci_low_s: Optional[float]
+    dt90_ci_high_s: Optional[float]
+    dt90_pi_low_s: Optional[float]
+    dt90_pi_high_s: Optional[float]
+    extrapolation_ln_k: Optional[float]
+    dominant_pathway: str
+    contributions: dict[str, Optional[float]]
+    flags: dict[str, bool]
+
+
+class PredictionColumnsPublic(Public):
+    values: dict[str, list[Optional[float]]] = Field(description="quantity -> one value per condition")
+    dominant_pathway: list[str]
+    contributions: dict[str, list[Optional[float]]]
+    flags: dict[str, list[bool]]
+
+
+class PredictionResponse(Public):
+    """Predictions at field conditions, always with the caution text."""
+
+    caution: str
+    substance_id: Optional[int] = None
+    data_version: Optional[str] = None
+    fit_options: FitOptions
+    level: float
+    method: str
+    dof: int
+    residual_scale: Optional[float]
+    temperature_range_K: list[float]
+    pH_range: list[float]
+    pathways_supported: list[str]
+    n_conditions: int
+    layout: Literal["rows", "columns"]
+    predictions: Optional[list[PredictionRow]] = None
+    columns: Optional[PredictionColumnsPublic] = None
+
+
+class CalculationResponse(Public):
+    """A stateless fit (nothing stored) and, if conditions were given, predictions."""
+
+    caution: str
+    model: SurfaceModelPublic
+    prediction: Optional[PredictionResponse] = None

@@ -5,6 +5,7 @@ from __future__ import annotations
 from fastapi import APIRouter
 
 from service.api.routes import audit, keys, runs, studies, substances
+from service.api.routes import calculate, models, predictions
 from service.errors import ERROR_RESPONSES
 
 #: routers mounted under /v1, in OpenAPI order
@@ -14,6 +15,9 @@ ROUTERS: list[APIRouter] = [
     runs.router,
     audit.router,
     keys.router,
+    models.router,
+    predictions.router,
+    calculate.router,
 ]
 
 api_router = APIRouter(prefix="/v1", responses=ERROR_RESPONSES)

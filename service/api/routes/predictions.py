@@ -1,0 +1,46 @@
+"""Predictions for a stored substance at field conditions (100,000 conditions per request)."""
+
+from __future__ import annotations
+
+from typing import Annotated
+
+from fastapi import APIRouter, Depends, Request
+from fastapi.responses import StreamingResponse
+
+from service.api.examples import openapi_examples
+from service.conditions import condition_arrays
+from service.deps import Principal, require_scope
+from service.jsonout import prediction_chunks
+from service.modelstore import load_model
+from service.predicting import prediction_header, run_predictions
+from service.schemas import PredictionRequest, PredictionResponse
+
+router = APIRouter(prefix="/substances", tags=["predictions"])
+
+
+@router.post(
+    "/{substance_id}/predictions",
+    response_model=None,
+    responses={200: {"model": PredictionResponse, "description": "Predictions with intervals and the caution"}},
+    summary="Predict k, DT50 and DT90 at field conditions",
+)
+def predict_substance(
+    substance_id: int,
+    request: Request,
+    body: Annotated[PredictionRequest, openapi_examples("prediction_request", "prediction_columns_request")],
+    _p: Annotated[Principal, Depends(require_scope("read"))],
+) -> StreamingResponse:
+    """Give conditions as objects (``conditions``) or, for many, as columns (``columns``).
+    Both intervals (confidence of the mean rate, prediction for a new run) are at ``level``.
+    Every response carries the caution text."""
+    settings = request.app.state.settings
+    arrays = condition_arrays(body.conditions, body.columns, max_conditions=settings.max_conditions_per_request)
+    stored = load_model(request.app.state.session_factory, substance_id=substance_id, options=body.fit_options)
+    pred = run_predictions(
+        stored.result.surface, arrays, body, max_mc_evaluations=settings.max_montecarlo_evaluations
+    )
+    header = prediction_header(
+        stored.result.surface, pred, opts=body, fit_options=body.fit_options,
+        substance_id=substance_id, data_version=stored.data_version,
+    )
+    return StreamingResponse(prediction_chunks(header, pred, body.layout), media_type="application/json")

@@ -1,0 +1,87 @@
+"""The fitted surface of a stored substance, from the fit cache or freshly fitted.
+
+A cache entry is keyed by substance, data version (the set of current run versions) and
+fit options; a new, superseded or withdrawn run changes the data version, so the next
+request misses and refits. Fresh fits are stored and then read back from their JSON form,
+so the first answer and every later cached answer carry identical numbers.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import json
+from dataclasses import dataclass
+
+from sqlalchemy.orm import Session, sessionmaker
+
+from kinetics.surface import SurfaceFit
+from service import crud
+from service.db import session_scope
+from service.fitting import FitResult, compute_fit, options_key, run_input_from_model
+from service.schemas import FitOptions
+
+__all__ = ["StoredModel", "load_model"]
+
+
+@dataclass(frozen=True)
+class StoredModel:
+    result: FitResult
+    substance_id: int
+    substance_name: str
+    data_version: str
+    fitted_at: dt.datetime
+    cached: bool
+
+    def meta(self) -> dict:
+        return {
+            "substance_id": self.substance_id,
+            "substance_name": self.substance_name,
+            "data_version": self.data_version,
+            "fitted_at": self.fitted_at.isoformat().replace("+00:00", "Z"),
+            "cached": self.cached,
+        }
+
+
+def _restore(fit_json: str, diagnostics_json: str) -> FitResult:
+    return FitResult(
+        surface=SurfaceFit.from_dict(json.loads(fit_json)), runs=json.loads(diagnostics_json)
+    )
+
+
+def load_model(factory: sessionmaker[Session], *, substance_id: int, options: FitOptions) -> StoredModel:
+    """The surface of ``substance_id`` fitted with ``options`` (cached when possible).
+
+    Raises
+    ------
+    service.errors.NotFound
+        Unknown substance.
+    kinetics.errors.KineticsError
+        The current runs cannot support the fit (mapped to 422).
+    """
+    key = options_key(options.model_dump(mode="json"))
+    with factory() as session:
+        substance = crud.get_substance(session, substance_id=substance_id)
+        name = substance.name
+        runs = crud.current_runs(session, substance_id=substance_id)
+        version = crud.data_version_of(substance_id=substance_id, run_version_ids=[r.id for r in runs])
+        entry = crud.get_cached_fit(session, substance_id=substance_id, data_version=version, options_key=key)
+        if entry is not None:
+            return StoredModel(
+                result=_restore(entry.fit_json, entry.diagnostics_json),
+                substance_id=substance_id, substance_name=name, data_version=version,
+                fitted_at=entry.created_at, cached=True,
+            )
+        inputs = [run_input_from_model(r) for r in runs]
+        session.rollback()
+    result = compute_fit(inputs, **options.kinetics_kwargs())
+    fit_json = json.dumps(result.surface.to_dict(), allow_nan=False)
+    with session_scope(factory, write=True) as session:
+        entry = crud.store_fit(
+            session, substance_id=substance_id, data_version=version, options_key=key,
+            fit_json=fit_json, diagnostics_json=result.diagnostics_json(),
+        )
+        fit_json, diagnostics_json, fitted_at = entry.fit_json, entry.diagnostics_json, entry.created_at
+    return StoredModel(
+        result=_restore(fit_json, diagnostics_json), substance_id=substance_id,
+        substance_name=name, data_version=version, fitted_at=fitted_at, cached=False,
+    )
