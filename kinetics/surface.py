@@ -1091,7 +1091,7 @@ def _trigamma_inverse(value: float) -> float:
 
 
 def moderate_variances(se2: Any, dof: Any) -> tuple[np.ndarray, float]:
-    """Empirical-Bayes moderation of the within-run variances.
+    r"""Empirical-Bayes moderation of the within-run variances.
 
     Each run's :math:`s_i^2` (``se_ln_k`` squared, :math:`\nu_i` degrees of
     freedom) is an estimate from a short series; weighting runs by these noisy
@@ -1111,8 +1111,9 @@ def moderate_variances(se2: Any, dof: Any) -> tuple[np.ndarray, float]:
 
     (:math:`\psi` digamma, :math:`\psi'` trigamma). When the spread of the
     :math:`\ln s_i^2` is no larger than their sampling noise alone explains,
-    :math:`d_0` is infinite and every run gets the pooled variance
-    :math:`s_0^2 = \exp(\bar e)` (represented by :data:`SE_POOLING_MAX_DOF`).
+    :math:`d_0` is infinite (represented by :data:`SE_POOLING_MAX_DOF`) and
+    every run gets the pooled variance
+    :math:`s_0^2 = \sum_i \nu_i s_i^2 / \sum_i \nu_i`.
 
     Parameters
     ----------
@@ -1134,11 +1135,12 @@ def moderate_variances(se2: Any, dof: Any) -> tuple[np.ndarray, float]:
         return s2.copy(), 0.0
     e = np.log(s2) - special.digamma(nu / 2.0) + np.log(nu / 2.0)
     excess = float(np.var(e, ddof=1) - np.mean(special.polygamma(1, nu / 2.0)))
-    if excess > 0.0:
-        d0 = min(2.0 * _trigamma_inverse(excess), SE_POOLING_MAX_DOF)
+    d0 = min(2.0 * _trigamma_inverse(excess), SE_POOLING_MAX_DOF) if excess > 0.0 else SE_POOLING_MAX_DOF
+    if d0 >= SE_POOLING_MAX_DOF:
+        # one common variance: its unbiased pooled estimate
+        s0_2 = float(np.sum(nu * s2) / np.sum(nu))
     else:
-        d0 = SE_POOLING_MAX_DOF
-    s0_2 = float(np.exp(np.mean(e) + special.digamma(d0 / 2.0) - np.log(d0 / 2.0)))
+        s0_2 = float(np.exp(np.mean(e) + special.digamma(d0 / 2.0) - np.log(d0 / 2.0)))
     return (d0 * s0_2 + nu * s2) / (d0 + nu), float(d0)
 
 
@@ -1442,9 +1444,9 @@ def _validate_prior(ea_prior_J_per_mol: Any) -> tuple[float, float] | None:
     sd = _finite_float(sd, "ea_prior_J_per_mol sd", "")
     if sd <= 0.0:
         raise InputError(f"the activation-energy prior needs a positive sd in J/mol, got {sd!r}")
-    if not 0.0 < mean < 500e3:
+    if not 1e3 <= mean <= 500e3:
         raise InputError(
-            f"the activation-energy prior mean must be in J/mol between 0 and 500000, got "
+            f"the activation-energy prior mean must be in J/mol between 1000 and 500000, got "
             f"{mean!r} (kJ/mol given by mistake?)"
         )
     return mean, sd
