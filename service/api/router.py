@@ -6,6 +6,7 @@ from fastapi import APIRouter
 
 from service.api.routes import audit, keys, runs, studies, substances
 from service.api.routes import calculate, models, predictions
+from service.api.routes import scenarios
 from service.errors import ERROR_RESPONSES
 
 #: routers mounted under /v1, in OpenAPI order
@@ -18,6 +19,7 @@ ROUTERS: list[APIRouter] = [
     models.router,
     predictions.router,
     calculate.router,
+    scenarios.router,
 ]
 
 api_router = APIRouter(prefix="/v1", responses=ERROR_RESPONSES)
