@@ -7,6 +7,7 @@ from fastapi import APIRouter
 from service.api.routes import audit, keys, runs, studies, substances
 from service.api.routes import calculate, models, predictions
 from service.api.routes import scenarios
+from service.api.routes import design
 from service.errors import ERROR_RESPONSES
 
 #: routers mounted under /v1, in OpenAPI order
@@ -20,6 +21,7 @@ ROUTERS: list[APIRouter] = [
     predictions.router,
     calculate.router,
     scenarios.router,
+    design.router,
 ]
 
 api_router = APIRouter(prefix="/v1", responses=ERROR_RESPONSES)
