@@ -63,7 +63,7 @@ _LN2 = math.log(2.0)
 _LN10 = math.log(10.0)
 _CHI2_ALPHA = 0.05  # significance level of the FOCUS 2006 chi-square test
 _WEIGHT_FLOOR = 1e-9  # relative floor on fitted values used as proportional weights
-_IRLS_MAX = 200
+_IRLS_MAX = 100
 _IRLS_TOL = 1e-13
 _COND_LIMIT = 1e10  # condition number of the column-scaled Jacobian
 
@@ -606,6 +606,36 @@ def _solve_scaled(model, theta0, t, y, error_model):
     return theta, obj
 
 
+def _solve_relative(model, theta0, t, y):
+    """Minimise the sum of squared relative residuals (y - f) / f.
+
+    Used as the bridge from the constant-variance fit to the reweighting for
+    proportional errors: it is one well-posed least-squares problem whose
+    optimum lies close to the reweighting fixed point, so the reweighting then
+    takes small steps. Returns None if it fails (the caller keeps theta0).
+    """
+    with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
+        def fun(th):
+            return 1.0 - y / model.predict(th, t)
+
+        def jac(th):
+            f = model.predict(th, t)
+            return model.jacobian(th, t) * (y / (f * f))[:, None]
+
+        theta0 = np.asarray(theta0, dtype=float)
+        if not np.all(np.isfinite(fun(theta0))):
+            return None
+        try:
+            res = least_squares(fun, theta0, jac=jac, method="lm", xtol=1e-12, ftol=1e-12,
+                                gtol=1e-12, max_nfev=500 * (theta0.size + 1))
+        except (ValueError, np.linalg.LinAlgError):
+            return None
+        if res.status <= 0 or not np.all(np.isfinite(res.x)) or not np.all(
+                np.isfinite(model.predict(res.x, t))):
+            return None
+        return res.x
+
+
 def _covariance(model, theta, t, y, error_model, kinds, *, name=None):
     """Statistics at the optimum on the original scale."""
     name = name or model.name
@@ -660,7 +690,12 @@ def _amplitude_projection(model, theta, t, y):
 
 
 def _fit_engine(model, t, y, starts, error_model):
-    """Best of several starts; statistics on the original scale."""
+    """Fit from several starts; returns the parameters on the original scale.
+
+    The constant-variance fit is run from every start and the best kept. For
+    proportional errors it is followed by the least-squares fit of relative
+    residuals and then by the reweighting to its fixed point.
+    """
     tscale = float(np.max(t))
     yscale = float(np.max(np.abs(y)))
     ts, ys = t / tscale, y / yscale
@@ -669,7 +704,7 @@ def _fit_engine(model, t, y, starts, error_model):
     for start in starts:
         th0 = _amplitude_projection(model, _to_scaled(start, model.kinds, tscale, yscale), ts, ys)
         try:
-            th, obj = _solve_scaled(model, th0, ts, ys, error_model)
+            th, obj = _solve_scaled(model, th0, ts, ys, "constant")
         except ConvergenceError as exc:
             failure = exc
             continue
@@ -678,8 +713,42 @@ def _fit_engine(model, t, y, starts, error_model):
     if best is None:
         raise failure if failure is not None else ConvergenceError(
             f"{model.name}: no starting values were available")
-    theta = _from_scaled(best[0], model.kinds, tscale, yscale)
-    return theta
+    theta = best[0]
+    if error_model == "proportional":
+        bridge = _solve_relative(model, theta, ts, ys)
+        if bridge is not None:
+            theta = bridge
+        theta, _ = _solve_scaled(model, theta, ts, ys, "proportional")
+    return _from_scaled(theta, model.kinds, tscale, yscale)
+
+
+def _check_fitted_decline(name: str, fitted: np.ndarray, t_s: np.ndarray, prep,
+                          error_model: str, where: str = ""):
+    """Refuse fits that ended at a flat line or at a vertical drop.
+
+    Both are limits the optimiser runs into when the data cannot support the
+    model (a flat line: no rate; a drop to zero before the second sampling
+    time: no rate either); they would otherwise surface as zero standard errors
+    or a singular covariance.
+    """
+    if error_model == "proportional":
+        hint = ("with relative-error weights the smallest values dominate; flag values "
+                "below the LOQ or use error_model='constant'")
+    else:
+        hint = "the data do not support this model; try another model"
+    first = float(fitted[0])
+    last = float(fitted[-1])
+    if not first > 0 or 1.0 - last / first < 1e-9:
+        raise ConvergenceError(
+            f"{where}{name}: the fit ran to a flat line (no decline between "
+            f"{_fmt(t_s[0] / prep.unit_factor)} and {_fmt(t_s[-1] / prep.unit_factor)} "
+            f"{prep.time_unit}); {hint}")
+    i2 = int(np.searchsorted(t_s, t_s[0], side="right"))
+    if float(fitted[i2]) < 1e-9 * first:
+        raise ConvergenceError(
+            f"{where}{name}: the fit ran to an instantaneous drop (the model reaches 0 before "
+            f"the second sampling time, {_fmt(t_s[i2] / prep.unit_factor)} {prep.time_unit}); "
+            f"{hint}")
 
 
 # -------------------------------------------------------- FOCUS statistics
@@ -894,13 +963,28 @@ def _canonical_dfop(theta: np.ndarray) -> np.ndarray:
 
 def _build_fit(spec, theta, prep: _Prepared, error_model: str) -> SeriesFit:
     t, y = prep.t_s, prep.y
+    with np.errstate(over="ignore", under="ignore"):
+        natural = natural_from_theta(theta, spec.kinds)
+        fitted = spec.predict(theta, t)
+    for name, kind, value in zip(spec.parameter_names, spec.kinds, natural):
+        if not math.isfinite(value) or (kind != "amplitude" and value <= 0.0):
+            raise ConvergenceError(f"{spec.name}: the fit ran to an extreme value of {name} "
+                                   f"({_fmt(value)}); the data do not support this model")
+    _check_fitted_decline(spec.name, fitted, t, prep, error_model)
+    second = float(t[np.searchsorted(t, t[0], side="right")])
     if spec.name == "DFOP":
         theta = _canonical_dfop(theta)
         g = float(expit(theta[3]))
-        if not 1e-8 < g < 1.0 - 1e-8 or theta[1] - theta[2] < 1e-6:
+        ratio = float(np.exp(min(theta[1] - theta[2], 700.0)))
+        if not 1e-8 < g < 1.0 - 1e-8 or ratio < 1.0 + 1e-6:
             raise IdentifiabilityError(
                 f"DFOP: the data support only one phase (g = {_fmt(g)}, k1/k2 = "
-                f"{_fmt(math.exp(theta[1] - theta[2]))}); fit SFO or FOMC instead")
+                f"{_fmt(ratio)}); fit SFO or FOMC instead")
+        if math.exp(theta[1]) * (second - t[0]) > 27.0:  # fast phase < 1e-12 left
+            raise IdentifiabilityError(
+                "DFOP: the fast phase is over before the second sampling time "
+                f"({_fmt(second / prep.unit_factor)} {prep.time_unit}), so its rate cannot be "
+                "estimated; fit SFO or FOMC instead")
     if spec.name == "HS":
         tb = math.exp(theta[3])
         if not t[0] < tb < t[-1]:
@@ -1109,6 +1193,13 @@ def _batch_results(preps, theta, t_s, y, mask, sizes, error_model):
     with np.errstate(under="ignore"):
         e = np.exp(-k[:, None] * t_s)
     f = c0[:, None] * e
+    first = f[:, 0]
+    last = f[np.arange(b), sizes - 1]
+    second = f[np.arange(b), [p.group.searchsorted(1) for p in preps]]
+    bad = ~(first > 0) | ~(1.0 - last / first >= 1e-9) | ~(second >= 1e-9 * first)
+    for i in np.flatnonzero(bad):
+        _check_fitted_decline("SFO", f[i, :sizes[i]], preps[i].t_s, preps[i], error_model,
+                              where=f"series[{i}]: ")
     w = _batch_weights(f, mask, error_model)
     j1 = -f * k[:, None] * t_s
     a00 = np.sum(w * e * e, axis=1)
@@ -1304,26 +1395,78 @@ def _batch_lm(theta, ts, ys, w, max_iter=500):
     return theta
 
 
+def _batch_lm_relative(theta, ts, ys, mask, max_iter=500):
+    """Levenberg-Marquardt on the relative residuals 1 - y/f, as in _solve_relative.
+
+    Series whose iteration leaves finite values keep the result; the others
+    keep ``theta`` (as _solve_relative returning None).
+    """
+    b = theta.shape[0]
+    start = theta
+    lam = np.full(b, 1e-3)
+    active = np.ones(b, dtype=bool)
+
+    def parts(th):
+        f, e, k = _batch_model(th, ts)
+        rho = (1.0 - ys / f) * mask
+        scale = ys / (f * f) * mask
+        return rho, scale * e, -scale * f * k * ts
+
+    rho, g0m, g1m = parts(theta)
+    obj = np.sum(rho * rho, axis=1)
+    for _ in range(max_iter):
+        if not active.any():
+            break
+        a00 = np.sum(g0m * g0m, axis=1)
+        a01 = np.sum(g0m * g1m, axis=1)
+        a11 = np.sum(g1m * g1m, axis=1)
+        # fun = 1 - y/f, jac = +(y/f^2) J_f: the Gauss-Newton step is -(G^T G)^-1 G^T rho
+        g0 = -np.sum(g0m * rho, axis=1)
+        g1 = -np.sum(g1m * rho, axis=1)
+        d00 = a00 * (1.0 + lam)
+        d11 = a11 * (1.0 + lam)
+        det = d00 * d11 - a01 * a01
+        s0 = (d11 * g0 - a01 * g1) / det
+        s1 = (d00 * g1 - a01 * g0) / det
+        step = np.column_stack((s0, s1))
+        step[~active] = 0.0
+        cand = theta + step
+        rc, c0m, c1m = parts(cand)
+        objc = np.sum(rc * rc, axis=1)
+        ok = active & np.isfinite(objc) & (objc <= obj)
+        theta = np.where(ok[:, None], cand, theta)
+        obj = np.where(ok, objc, obj)
+        rho = np.where(ok[:, None], rc, rho)
+        g0m = np.where(ok[:, None], c0m, g0m)
+        g1m = np.where(ok[:, None], c1m, g1m)
+        lam = np.where(ok, np.maximum(lam / 10.0, 1e-12), lam * 10.0)
+        pred = s0 * g0 + s1 * g1
+        active &= ~((pred <= 1e-12 * obj + 1e-30) | (lam > 1e12))
+    good = np.all(np.isfinite(theta), axis=1) & np.isfinite(obj)
+    return np.where(good[:, None], theta, start)
+
+
 def _batch_solve(theta, ts, ys, mask, error_model):
+    """Constant-variance fit of every series, then reweighting for proportional errors."""
     if not np.all(np.isfinite(theta)):
         bad = int(np.argmax(~np.all(np.isfinite(theta), axis=1)))
         raise ConvergenceError(f"series[{bad}]: no finite SFO starting values")
-    f, _, _ = _batch_model(theta, ts)
-    w = _batch_weights(f, mask, error_model)
-    for _ in range(_IRLS_MAX):
-        new = _batch_lm(theta, ts, ys, w)
-        if error_model == "constant":
-            theta = new
-            break
-        change = np.max(np.abs(new - theta))
-        theta = new
+    theta = _batch_lm(theta, ts, ys, mask)
+    if error_model == "proportional":
+        theta = _batch_lm_relative(theta, ts, ys, mask)
         f, _, _ = _batch_model(theta, ts)
         w = _batch_weights(f, mask, error_model)
-        if change < _IRLS_TOL:
-            break
-    else:
-        raise ConvergenceError(f"SFO batch: the reweighting for proportional errors did not "
-                               f"settle in {_IRLS_MAX} iterations")
+        for _ in range(_IRLS_MAX):
+            new = _batch_lm(theta, ts, ys, w)
+            change = np.max(np.abs(new - theta))
+            theta = new
+            f, _, _ = _batch_model(theta, ts)
+            w = _batch_weights(f, mask, error_model)
+            if not change >= _IRLS_TOL:
+                break
+        else:
+            raise ConvergenceError(f"SFO batch: the reweighting for proportional errors did "
+                                   f"not settle in {_IRLS_MAX} iterations")
     if not np.all(np.isfinite(theta)):
         bad = int(np.argmax(~np.all(np.isfinite(theta), axis=1)))
         raise ConvergenceError(f"series[{bad}]: the SFO iteration ended at non-finite values")
