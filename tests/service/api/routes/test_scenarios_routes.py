@@ -1,4 +1,6 @@
-"""Scenario, normalisation, persistence screening, study check and hint routes (invented data)."""
+"""Routes of service/api/routes/scenarios.py: scenarios, normalisation, persistence screening,
+study checks and hints (invented data). Named test_scenarios_routes so that its module name
+differs from tests/kinetics/test_scenarios.py."""
 
 from __future__ import annotations
 
