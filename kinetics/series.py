@@ -73,10 +73,15 @@ _COND_LIMIT = 1e10  # condition number of the column-scaled Jacobian
 class SeriesInterval:
     """Confidence intervals of one series fit at one confidence level.
 
-    All bounds are t-based with ``dof`` degrees of freedom. They are formed on
-    the scale on which each parameter was fitted (log for rates, times and
-    FOMC alpha; logit for DFOP g; linear for C0) and transformed back, so the
-    bounds of a positive parameter are positive.
+    All bounds are t-based with ``dof`` degrees of freedom. Parameter bounds
+    are formed on the scale on which each parameter was fitted and transformed
+    back: for ``method="nls"`` log for rates, times and FOMC alpha, logit for
+    DFOP g and linear for C0, so the bounds of a positive parameter are
+    positive; for ``method="loglinear"`` log for C0 (the intercept is ln C0)
+    and linear for k (the exact OLS interval of the slope, whose lower bound can
+    be <= 0 when the decline is not significant). The bounds of the
+    representative rate k, of DT50 and of DT90 are always formed on the log
+    scale from :attr:`SeriesFit.se_ln_k` and :attr:`SeriesFit.se_ln_dt90`.
 
     Attributes
     ----------
@@ -229,7 +234,8 @@ class SeriesFit:
             \\mathrm{se}(\\hat\\theta_j)
 
         on the fitted scale of each parameter, transformed back; for k, DT50
-        and DT90 on the log scale with :attr:`se_ln_k` and :attr:`se_ln_dt90`.
+        and DT90 on the log scale with :attr:`se_ln_k` and :attr:`se_ln_dt90`
+        (see :class:`SeriesInterval`).
 
         Parameters
         ----------
@@ -251,25 +257,23 @@ class SeriesFit:
         lo_th, hi_th = self._theta - q * se, self._theta + q * se
         low = np.empty_like(self.estimates)
         high = np.empty_like(self.estimates)
-        for i, kind in enumerate(self._kinds):
-            if kind == "negated_log_rate":  # log-linear slope b = -k
-                low[i], high[i] = -hi_th[i], -lo_th[i]
-            elif kind == "log_amplitude":  # log-linear intercept a = ln C0
-                low[i], high[i] = math.exp(lo_th[i]), math.exp(hi_th[i])
-            elif kind == "amplitude":
-                low[i], high[i] = lo_th[i], hi_th[i]
-            elif kind == "logit":
-                low[i], high[i] = expit(lo_th[i]), expit(hi_th[i])
-            else:
-                low[i], high[i] = math.exp(lo_th[i]), math.exp(hi_th[i])
-        if self.method == "loglinear":
-            # exact OLS interval of the slope; DT bounds follow from k bounds
-            k_lo, k_hi = float(low[1]), float(high[1])
-            if k_lo <= 0.0:
-                k_lo = self.k_per_s * math.exp(-q * self.se_ln_k)
-        else:
-            k_lo = self.k_per_s * math.exp(-q * self.se_ln_k)
-            k_hi = self.k_per_s * math.exp(q * self.se_ln_k)
+        with np.errstate(over="ignore"):  # an unbounded bound is reported as inf
+            for i, kind in enumerate(self._kinds):
+                if kind == "negated_log_rate":  # log-linear slope b = -k
+                    low[i], high[i] = -hi_th[i], -lo_th[i]
+                elif kind == "amplitude":
+                    low[i], high[i] = lo_th[i], hi_th[i]
+                elif kind == "logit":
+                    low[i], high[i] = expit(lo_th[i]), expit(hi_th[i])
+                else:  # log_rate, log_time, log and the log-linear intercept ln C0
+                    low[i], high[i] = np.exp(lo_th[i]), np.exp(hi_th[i])
+            # k, DT50 and DT90 always on the log scale (positive bounds)
+            k_lo = float(self.k_per_s * np.exp(-q * self.se_ln_k))
+            k_hi = float(self.k_per_s * np.exp(q * self.se_ln_k))
+            dt90_lo = float(self.dt90_s * np.exp(-q * self.se_ln_dt90))
+            dt90_hi = float(self.dt90_s * np.exp(q * self.se_ln_dt90))
+            dt50_lo = float(self.dt50_s * np.exp(-q * self.se_ln_k))
+            dt50_hi = float(self.dt50_s * np.exp(q * self.se_ln_k))
         return SeriesInterval(
             level=lvl,
             parameter_names=self.parameter_names,
@@ -277,10 +281,10 @@ class SeriesFit:
             high=_frozen(high),
             k_low_per_s=k_lo,
             k_high_per_s=k_hi,
-            dt50_low_s=self.dt50_s * self.k_per_s / k_hi,
-            dt50_high_s=self.dt50_s * self.k_per_s / k_lo,
-            dt90_low_s=self.dt90_s * math.exp(-q * self.se_ln_dt90),
-            dt90_high_s=self.dt90_s * math.exp(q * self.se_ln_dt90),
+            dt50_low_s=dt50_lo,
+            dt50_high_s=dt50_hi,
+            dt90_low_s=dt90_lo,
+            dt90_high_s=dt90_hi,
         )
 
     def fitted_at(self, time_s: Any) -> np.ndarray:

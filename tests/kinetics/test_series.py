@@ -187,7 +187,9 @@ def test_sfo_loglinear_matches_statsmodels_ols():
     assert_allclose(fit.p_rate_positive["k_per_s"], ref.pvalues[1] / 2, rtol=1e-6)
     lo, hi = ref.conf_int(alpha=0.05)[1]
     iv = fit.interval(0.95)
-    assert_allclose([iv.k_low_per_s * DAY, iv.k_high_per_s * DAY], [-hi, -lo], rtol=1e-6)
+    assert_allclose([iv.low[1] * DAY, iv.high[1] * DAY], [-hi, -lo], rtol=1e-6)
+    lo0, hi0 = ref.conf_int(alpha=0.05)[0]
+    assert_allclose([iv.low[0], iv.high[0]], np.exp([lo0, hi0]), rtol=1e-6)
     # statsmodels: aic = -2 llf + 2 (number of regression coefficients); ours
     # counts sigma too and is expressed for C (Jacobian of ln: + 2 sum ln C).
     assert_allclose(fit.aic, ref.aic + 2 + 2 * np.sum(np.log(c)), rtol=1e-9)
