@@ -52,6 +52,7 @@ _LAZY = {
     "screen_persistence": "kinetics.screening",
     "check_study": "kinetics.screening",
     "class_hints": "kinetics.hints",
+    "recommend_design": "kinetics.design",
 }
 
 _SUBMODULES = {

@@ -2081,7 +2081,7 @@ def recommend_design(
     )
     reasoning = _reasoning(
         prior, fields, constraints, ev, target, met, needed, naive_ev, prelim, excluded,
-        method, prior_range, criterion, leaned_on_prior,
+        method, prior_range, criterion, leaned_on_prior, n_draws,
     )
     return DesignRecommendation(
         runs=ev.runs,
@@ -2110,6 +2110,7 @@ def _reasoning(
     ev: DesignEvaluation, target: float, met: np.ndarray, needed: int | None,
     naive_ev: DesignEvaluation, prelim: PreliminaryTestAdvice, excluded: list[str],
     method: str, prior_range: np.ndarray, criterion: str, leaned_on_prior: bool,
+    n_draws: int,
 ) -> tuple[str, ...]:
     out: list[str] = []
     if prelim.recommended:
@@ -2155,10 +2156,17 @@ def _reasoning(
                 "spread of the design matters."
             )
         lo, hi = prior_range[i]
+        upper = (
+            f"{hi:.2f}" if math.isfinite(hi) else
+            "no bound: under some plausible kinetics a planned run would decline too little "
+            "or too fast to measure, so check the first samples against the expected decline "
+            "and adjust the sampling times"
+        )
         out.append(
             f"If the true kinetics differ from the guess within its stated uncertainty, the "
-            f"ratio would lie between {lo:.2f} and {hi:.2f} (5th-95th percentile over prior "
-            f"draws; the design was chosen by the {criterion} criterion)."
+            f"ratio would lie between {lo:.2f} and {upper} (5th-95th percentile over "
+            f"{n_draws} prior draws; the design was chosen by the {criterion} "
+            "criterion)."
         )
     if ev.ea_from_prior:
         mean, sd = prior.fit_ea_prior
@@ -2311,7 +2319,7 @@ def simulate_design(
 
     n_studies = _count(n_studies, "n_studies", 1)
     _quantile(level)
-    if isinstance(field_condition, FieldCondition) is False:
+    if not isinstance(field_condition, FieldCondition):
         raise InputError(f"field_condition must be a FieldCondition, got {field_condition!r}")
     runs = tuple(runs)
     if not runs or not all(isinstance(r, DesignRun) for r in runs):
