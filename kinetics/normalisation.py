@@ -193,7 +193,8 @@ def normalisation_factor(
 
         \\frac{DT_{50}(T_\\mathrm{ref})}{DT_{50}(T)} =
         \\exp\\left(\\frac{E_a}{R}\\left(\\frac{1}{T_\\mathrm{ref}} - \\frac{1}{T}\\right)\\right)
-        \\quad \\text{(efsa\\_2008, } E_a = 65.4\\ \\mathrm{kJ/mol}\\text{; EFSA Journal (2008) 622)}
+        \\quad \\text{(efsa\\_2008, } E_a = 65.4\\ \\mathrm{kJ/mol}
+        \\text{; EFSA Journal (2008) 622)}
 
     .. math::
 
@@ -219,7 +220,9 @@ def normalisation_factor(
     if method == "echa_r16":
         return math.exp(ECHA_R16_FACTOR_PER_K * (t1 - t2))
     if method == "fitted":
-        raise InputError("method 'fitted' needs a surface fit: use normalise_dt50(..., surface=fit)")
+        raise InputError(
+            "method 'fitted' needs a surface fit: use normalise_dt50(..., surface=fit)"
+        )
     raise InputError(
         f"unknown normalisation method {method!r}; valid: {', '.join(NORMALISATION_METHODS)}"
     )

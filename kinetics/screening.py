@@ -99,7 +99,9 @@ class PersistenceCriterion:
     source: str
 
 
-_REACH = "REACH Annex XIII (Regulation (EC) No 1907/2006, as amended by Regulation (EU) No 253/2011)"
+_REACH = (
+    "REACH Annex XIII (Regulation (EC) No 1907/2006, as amended by Regulation (EU) No 253/2011)"
+)
 _REACH_TEMPERATURE = (
     " Compared at 12 °C, the temperature at which ECHA's PBT guidance (Guidance on IR&CSA "
     "Chapter R.11) asks for water half-lives to be expressed (from memory, not checked "
@@ -743,7 +745,9 @@ def _decline_runs(rs: Sequence[StudyRun]) -> list[StudyRun]:
     return [r for r in rs if r.percent_loss >= _MIN_LOSS_FOR_RATE_PERCENT]
 
 
-def _claim_rates(by_ph: Mapping[float, list[StudyRun]], unstable: tuple[float, ...]) -> ClaimAssessment:
+def _claim_rates(
+    by_ph: Mapping[float, list[StudyRun]], unstable: tuple[float, ...]
+) -> ClaimAssessment:
     targets = list(unstable) or list(by_ph)
     reasons: list[str] = []
     missing: list[str] = []
@@ -757,9 +761,11 @@ def _claim_rates(by_ph: Mapping[float, list[StudyRun]], unstable: tuple[float, .
                 f"a run at pH {ph:g} with >= 20 % loss (less decline gives a poorly defined k)"
             )
         for r in rs:
-            if abs(r.temperature_K - _PRELIM_T_K) <= _PRELIM_T_TOL_K and r.duration_s <= 5.01 * DAY_S:
+            tier1 = abs(r.temperature_K - _PRELIM_T_K) <= _PRELIM_T_TOL_K
+            if tier1 and r.duration_s <= 5.01 * DAY_S:
                 continue  # the Tier 1 run itself
-            if r.percent_loss < _HIGHER_TIER_LOSS_PERCENT and r.duration_s < _HIGHER_TIER_DURATION_S:
+            short = r.duration_s < _HIGHER_TIER_DURATION_S
+            if r.percent_loss < _HIGHER_TIER_LOSS_PERCENT and short:
                 reasons.append(
                     f"{r.describe()}: ended before 90 % loss and before 30 days (OECD TG 111 "
                     "Tier 2 runs continue until one of the two)"
@@ -768,7 +774,9 @@ def _claim_rates(by_ph: Mapping[float, list[StudyRun]], unstable: tuple[float, .
     return ClaimAssessment("rate_constants", supported, tuple(reasons), tuple(missing))
 
 
-def _claim_ea(by_ph: Mapping[float, list[StudyRun]], unstable: tuple[float, ...]) -> ClaimAssessment:
+def _claim_ea(
+    by_ph: Mapping[float, list[StudyRun]], unstable: tuple[float, ...]
+) -> ClaimAssessment:
     targets = list(unstable) or [ph for ph, rs in by_ph.items() if _decline_runs(rs)]
     reasons: list[str] = []
     missing: list[str] = []
