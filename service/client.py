@@ -384,6 +384,37 @@ class Client(_Base):
         return RunPublic.model_validate(
             self._json("POST", f"/v1/runs/{run_uid}/withdraw", json={"reason": reason}))
 
+    # models and predictions ----------------------------------------------
+    def get_model(self, substance_id: int, *, level: float = 0.95,
+                  **fit_options: Any) -> dict[str, Any]:
+        """The fitted rate surface of a substance (parameters, covariance, per-run fits,
+        flags, caution); ``fit_options`` as the API's fit options."""
+        params = {"level": level, **{k: v for k, v in fit_options.items() if v is not None}}
+        return self._json("GET", f"/v1/substances/{substance_id}/model", params=params)
+
+    def predict(self, substance_id: int, conditions: Sequence[Mapping[str, Any]], *,
+                level: float = 0.95, method: str = "delta",
+                fit_options: Optional[Mapping[str, Any]] = None,
+                **options: Any) -> dict[str, Any]:
+        """k, DT50 and DT90 with intervals at field conditions (``temperature_C`` or
+        ``temperature_K``, ``pH``, optional ``ionic_strength_M`` / ``salinity``)."""
+        body = {"conditions": list(conditions), "level": level, "method": method, **options}
+        if fit_options:
+            body["fit_options"] = dict(fit_options)
+        return self._json("POST", f"/v1/substances/{substance_id}/predictions", json=body)
+
+    def calculate(self, runs: Sequence[Mapping[str, Any]],
+                  conditions: Optional[Sequence[Mapping[str, Any]]] = None, *,
+                  level: float = 0.95, fit_options: Optional[Mapping[str, Any]] = None,
+                  **options: Any) -> dict[str, Any]:
+        """Fit posted runs (not stored) and optionally predict at ``conditions``."""
+        body: dict[str, Any] = {"runs": list(runs), "level": level, **options}
+        if conditions is not None:
+            body["conditions"] = list(conditions)
+        if fit_options:
+            body["fit_options"] = dict(fit_options)
+        return self._json("POST", "/v1/calculate", json=body)
+
     # CSV, reports ---------------------------------------------------------
     def import_csv(self, csv_text: str) -> dict[str, Any]:
         """Import runs from CSV text (the documented column set); all or nothing."""
@@ -542,6 +573,31 @@ class AsyncClient(_Base):
     async def withdraw_run(self, run_uid: str, reason: str) -> RunPublic:
         return RunPublic.model_validate(
             await self._json("POST", f"/v1/runs/{run_uid}/withdraw", json={"reason": reason}))
+
+    async def get_model(self, substance_id: int, *, level: float = 0.95,
+                        **fit_options: Any) -> dict[str, Any]:
+        params = {"level": level, **{k: v for k, v in fit_options.items() if v is not None}}
+        return await self._json("GET", f"/v1/substances/{substance_id}/model", params=params)
+
+    async def predict(self, substance_id: int, conditions: Sequence[Mapping[str, Any]], *,
+                      level: float = 0.95, method: str = "delta",
+                      fit_options: Optional[Mapping[str, Any]] = None,
+                      **options: Any) -> dict[str, Any]:
+        body = {"conditions": list(conditions), "level": level, "method": method, **options}
+        if fit_options:
+            body["fit_options"] = dict(fit_options)
+        return await self._json("POST", f"/v1/substances/{substance_id}/predictions", json=body)
+
+    async def calculate(self, runs: Sequence[Mapping[str, Any]],
+                        conditions: Optional[Sequence[Mapping[str, Any]]] = None, *,
+                        level: float = 0.95, fit_options: Optional[Mapping[str, Any]] = None,
+                        **options: Any) -> dict[str, Any]:
+        body: dict[str, Any] = {"runs": list(runs), "level": level, **options}
+        if conditions is not None:
+            body["conditions"] = list(conditions)
+        if fit_options:
+            body["fit_options"] = dict(fit_options)
+        return await self._json("POST", "/v1/calculate", json=body)
 
     async def import_csv(self, csv_text: str) -> dict[str, Any]:
         return await self._json("POST", "/v1/imports/runs.csv", content=csv_text.encode("utf-8"),

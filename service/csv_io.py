@@ -496,6 +496,8 @@ def parse_runs_csv(
             line = reader.line_num
             if progress is not None and line % 500 == 0:
                 progress(line)
+            if cells and line == 1:
+                cells[0] = cells[0].lstrip("\ufeff")
             if not cells or all(not c.strip() for c in cells):
                 continue
             if cells[0].lstrip().startswith("#"):
