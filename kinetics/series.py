@@ -970,11 +970,12 @@ def _build_fit(spec, theta, prep: _Prepared, error_model: str) -> SeriesFit:
     with np.errstate(over="ignore", under="ignore"):
         natural = natural_from_theta(theta, spec.kinds)
         fitted = spec.predict(theta, t)
+    if np.all(np.isfinite(fitted)):
+        _check_fitted_decline(spec.name, fitted, t, prep, error_model)
     for name, kind, value in zip(spec.parameter_names, spec.kinds, natural):
         if not math.isfinite(value) or (kind != "amplitude" and value <= 0.0):
             raise ConvergenceError(f"{spec.name}: the fit ran to an extreme value of {name} "
                                    f"({_fmt(value)}); the data do not support this model")
-    _check_fitted_decline(spec.name, fitted, t, prep, error_model)
     second = float(t[np.searchsorted(t, t[0], side="right")])
     if spec.name == "DFOP":
         theta = _canonical_dfop(theta)

@@ -427,6 +427,8 @@ DATA_ERRORS = [
     ({"time": GOOD_T, "concentration": GOOD_C, "loq": -2}, "loq = -2"),
     ({"time": GOOD_T, "concentration": [10, 8, 0, 3.5, 1.4], "method": "loglinear"},
      "is 0"),
+    ({"time": GOOD_T, "concentration": GOOD_C, "loq": "low"}, "got 'low'"),
+    ({"time": GOOD_T, "concentration": GOOD_C, "below_loq": [0, 0, 0, 0, 1]}, "True/False"),
     ({"time": [[0, 1], [2, 3]], "concentration": [1, 2, 3, 4]}, "one-dimensional"),
     ({"time": ["a", "b", "c"], "concentration": [1, 2, 3]}, "sequence of numbers"),
 ]
@@ -469,6 +471,31 @@ def test_invalid_combinations_and_units():
 def test_multi_phase_model_on_exact_single_phase_data_is_not_identifiable(model):
     with pytest.raises(IdentifiabilityError, match=model):
         fit_series(T_DAYS, _curve("SFO", TRUTH["SFO"], T_DAYS), model=model)
+
+
+# Invented series whose values stop at a noise floor near 0.3 after day 14.
+FLOOR_T = [0, 1, 3, 7, 14, 21, 28, 42, 56, 70, 90, 120]
+FLOOR_C = [94.178, 66.071, 29.567, 6.23, 0.227, 0.294, 0.243, 0.357, 0.277, 0.032, 0.295,
+           0.205]
+
+
+def test_proportional_fit_dominated_by_noise_floor_raises_clear_error():
+    with pytest.raises(ConvergenceError, match="flat line .*error_model='constant'"):
+        fit_series(FLOOR_T, FLOOR_C, error_model="proportional")
+    with pytest.raises(ConvergenceError, match=r"series\[1\]: SFO: the fit ran to a flat line"):
+        fit_sfo_batch([(T_DAYS, _curve("SFO", TRUTH["SFO"], T_DAYS)), (FLOOR_T, FLOOR_C)],
+                      error_model="proportional")
+    # the constant-variance fit of the same data is well defined
+    fit = fit_series(FLOOR_T, FLOOR_C)
+    assert_allclose(fit.k_per_s * DAY, 0.38, rtol=0.05)
+
+
+def test_dfop_with_fast_phase_over_before_second_sample_is_refused():
+    # invented: a 30 % drop within minutes, then a slow first-order decline
+    t = np.array([0, 2, 4, 7, 14, 21, 28, 42])
+    c = np.r_[100.0, 70 * np.exp(-0.03 * t[1:])]
+    with pytest.raises(IdentifiabilityError, match="fast phase is over before the second"):
+        fit_series(t, c, model="DFOP")
 
 
 def test_exponential_rise_bad_start():
