@@ -38,6 +38,7 @@ def guarded(func: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Nam
 
     @functools.wraps(func)
     def wrapper(args: argparse.Namespace) -> int:
+        from pydantic import ValidationError
         from sqlalchemy.exc import OperationalError
 
         from kinetics.errors import KineticsError
@@ -55,6 +56,13 @@ def guarded(func: Callable[[argparse.Namespace], int]) -> Callable[[argparse.Nam
                 message += f" (and {len(msgs) - 1} more problem(s) of the same request)"
         except (KineticsError, ServiceError, FieldrateError) as exc:
             message = str(exc)
+        except ValidationError as exc:
+            parts = []
+            for e in exc.errors():
+                msg = str(e.get("msg", "invalid value")).removeprefix("Value error, ")
+                loc = ".".join(str(p) for p in e.get("loc", ()))
+                parts.append(f"{loc}: {msg}" if loc else msg)
+            message = "; ".join(parts)
         except FileNotFoundError as exc:
             message = f"no such file: {exc.filename}"
         except IsADirectoryError as exc:

@@ -88,6 +88,9 @@ def _report(args: argparse.Namespace) -> int:
         raise CommandError("give either a SUBSTANCE (from the database) or --csv FILE, not both")
     if not args.csv and not args.substance:
         raise CommandError("name a SUBSTANCE (id or name) or give --csv FILE")
+    if not 0.0 <= args.field_temperature_C <= 100.0:
+        raise CommandError(f"--field-temperature-C {args.field_temperature_C:g} is outside "
+                           "liquid water (0 to 100 °C)")
     t_K = float(units.celsius_to_kelvin(args.field_temperature_C))
     pH_values = tuple(args.pH) if args.pH else report.DEFAULT_FIELD_PH
     as_of = _parse_as_of(args.as_of)
