@@ -565,32 +565,38 @@ def _conditions(
         bad = ~np.isfinite(arr)
         if bad.any():
             i = int(np.argmax(bad))
-            raise InputError(f"{name} must be finite; got {arr[i]!r} at index {_index(i, shape)}")
+            raise InputError(
+                f"{name} must be finite; got {float(arr[i])!r} at index {_index(i, shape)}"
+            )
     T, ph, ionic, sal = flat
     bad = (T < units.LIQUID_WATER_MIN_K) | (T > units.LIQUID_WATER_MAX_K)
     if bad.any():
         i = int(np.argmax(bad))
         hint = ""
-        if 0.0 <= T[i] <= 100.0:
-            hint = f" (it looks like °C: {T[i]!r} °C is {T[i] + units.ZERO_CELSIUS_K!r} K)"
+        bad_t = float(T[i])
+        if 0.0 <= bad_t <= 100.0:
+            hint = f" (it looks like °C: {bad_t!r} °C is {bad_t + units.ZERO_CELSIUS_K!r} K)"
         raise InputError(
-            f"temperature_K {T[i]!r} K at index {_index(i, shape)} is outside liquid water "
+            f"temperature_K {bad_t!r} K at index {_index(i, shape)} is outside liquid water "
             f"at 0.1 MPa ({units.LIQUID_WATER_MIN_K}-{units.LIQUID_WATER_MAX_K} K){hint}"
         )
     bad = (ph < units.PH_MIN) | (ph > units.PH_MAX)
     if bad.any():
         i = int(np.argmax(bad))
-        raise InputError(f"pH must lie between 0 and 14; got {ph[i]!r} at index {_index(i, shape)}")
+        raise InputError(
+            f"pH must lie between 0 and 14; got {float(ph[i])!r} at index {_index(i, shape)}"
+        )
     bad = ionic < 0.0
     if bad.any():
         i = int(np.argmax(bad))
         raise InputError(
-            f"ionic_strength_M must be >= 0 mol/L; got {ionic[i]!r} at index {_index(i, shape)}"
+            f"ionic_strength_M must be >= 0 mol/L; got {float(ionic[i])!r} at index "
+            f"{_index(i, shape)}"
         )
     bad = sal < 0.0
     if bad.any():
         i = int(np.argmax(bad))
-        raise InputError(f"salinity must be >= 0; got {sal[i]!r} at index {_index(i, shape)}")
+        raise InputError(f"salinity must be >= 0; got {float(sal[i])!r} at index {_index(i, shape)}")
     return T, ph, ionic, sal, tuple(shape)
 
 
