@@ -18,7 +18,7 @@ HS    ``[C0, ln k1, ln k2, ln tb]``
 The equations are those of FOCUS (2006) Guidance document on estimating
 persistence and degradation kinetics from environmental fate studies on
 pesticides in EU registration, Sanco/10058/2005 v2.0; they are written out in
-the docstring of :func:`kinetics.series.fit_series`.
+the module docstring of :mod:`kinetics.series` and in :func:`kinetics.series.fit_series`.
 """
 
 from __future__ import annotations

@@ -886,10 +886,16 @@ def fit_series(time: Any, concentration: Any, *, time_unit: str = "d", model: st
     value; the result is refined by a few Gauss-Newton steps. DFOP is reported
     with :math:`k_1 \ge k_2`.
 
-    **Covariance.** :math:`\mathrm{cov}(\hat\theta) = s^2 (J^T W J)^{-1}` with
-    :math:`s^2 = \sum_i w_i r_i^2 / (n - p)` on the fitted scale, transformed to
-    the natural scale by the delta method. ``se_ln_k`` is the standard error of
-    ln k for SFO and of ln DT50 otherwise (the two coincide since
+    **Covariance.** On the fitted scale
+
+    .. math::
+
+        \mathrm{cov}(\hat\theta) = s^2 (J^T W J)^{-1}, \qquad
+        s^2 = \frac{\sum_i w_i r_i^2}{n - p}
+
+    (Bates and Watts (1988) Nonlinear regression analysis and its applications,
+    Wiley), transformed to the natural scale by the delta method. ``se_ln_k``
+    is the standard error of ln k for SFO and of ln DT50 otherwise (the two coincide since
     :math:`k = \ln 2 / DT_{50}`).
 
     **DT50 and DT90** (FOCUS 2006):
