@@ -17,10 +17,22 @@ two-stage statistical model that :mod:`kinetics` fits:
    surface fit uses when the design leaves a pathway at one temperature.
 
 The criterion is c-optimality for the log rate at the field condition,
-:math:`\\sigma^2 = c^T I^{-1} c` with :math:`c = \\partial \\ln k(\\text{field}) / \\partial \\theta`
-(minimax over several field conditions), and the 95 % interval on DT50 has the width
-ratio :math:`\\exp(2 z \\sigma)`. Designs are searched over the laboratory's allowed
-temperature × pH cells with a fixed number of vessels (:func:`recommend_design`).
+:math:`\\sigma^2 = c^T I^{-1} c` with
+:math:`c = \\partial \\ln k(\\text{field}) / \\partial \\theta` (minimax over several
+field conditions), and the 95 % interval on DT50 has the width ratio
+:math:`\\exp(2 q \\sigma)`, with q the Student-t quantile at the degrees of freedom
+the surface fit will have (runs minus parameters estimated from the data), as
+:func:`kinetics.prediction.predict` uses it (the normal quantile z for many runs).
+Designs are searched over the laboratory's allowed temperature × pH cells with a fixed
+number of vessels (:func:`recommend_design`): exhaustively when the allocations are few
+enough, otherwise by a greedy start and one-vessel exchanges. A design is admissible only
+if the surface fit can use it as it stands: enough pH levels for the pathways, at least
+one degree of freedom, every pathway determined (standard error of its ln k at most 0.3
+somewhere in the allowed temperature range) and, by default, every activation energy
+given by the data rather than by the fit's generic prior.
+
+The Fisher information is the linear approximation; :func:`simulate_design` checks a
+design by simulating whole studies and fitting them with :mod:`kinetics`.
 
 Entry points: :func:`recommend_design`, :func:`evaluate_design`, :func:`naive_design`,
 :func:`simulate_design`, :func:`preliminary_test_advice`, :func:`sampling_times_s`.
@@ -38,7 +50,7 @@ import numpy as np
 from scipy import stats
 
 from kinetics.caution import CAUTION_TEXT
-from kinetics.errors import DataError, FitError, InputError, KineticsError
+from kinetics.errors import DataError, InputError, KineticsError
 from kinetics.surface import (
     DEFAULT_EA_PRIOR_SD_J_PER_MOL,
     EFSA_DEFAULT_EA_J_PER_MOL,
@@ -1193,7 +1205,8 @@ def _evaluate(
         return DesignEvaluation(
             runs=runs, field_conditions=fields, parameter_names=names, information=info,
             covariance=None, identifiable=False, problem=problem, ea_from_prior=ea_prior,
-            dof=dof, pathway_se_ln_k={}, weak_pathways=prior.pathway_names, se_ln_k=inf, width_ratio=inf.copy(), dt50_s=dt50, level=float(level),
+            dof=dof, pathway_se_ln_k={}, weak_pathways=prior.pathway_names, se_ln_k=inf,
+            width_ratio=inf.copy(), dt50_s=dt50, level=float(level),
             variance_by_run=empty, variance_by_parameter=empty, variance_by_pathway=empty,
             scatter_share=np.zeros(len(fields)),
         )
@@ -1441,7 +1454,8 @@ def _compositions(n: int, k: int) -> np.ndarray:
     if k == 1:
         return np.array([[n]])
     bars = np.array(list(itertools.combinations(range(n + k - 1), k - 1)))
-    edges = np.hstack([np.full((bars.shape[0], 1), -1), bars, np.full((bars.shape[0], 1), n + k - 1)])
+    m = bars.shape[0]
+    edges = np.hstack([np.full((m, 1), -1), bars, np.full((m, 1), n + k - 1)])
     return np.diff(edges, axis=1) - 1
 
 
@@ -1904,7 +1918,7 @@ def recommend_design(
     level: float = 0.95,
     criterion: str = "local",
     n_prior_draws: int = 32,
-    max_exhaustive: int = 200_000,
+    max_exhaustive: int = 100_000,
     ea_prior_allowed: str = "if_needed",
     seed: int = 0,
 ) -> DesignRecommendation:
@@ -2042,9 +2056,8 @@ def recommend_design(
             f"pathway of the model ({', '.join(prior.pathway_names)}) well enough for the "
             f"fit (standard error of ln k of each pathway at most {_MAX_PATHWAY_SE_LN_K}); "
             f"share of k_obs in the measurable cells: {shares}. Add vessels, allow "
-            "more temperatures or pH values, give Ea uncertainties (Ea_sd_J_per_mol) for "
-            "pathways that can only be measured at one temperature, or drop a pathway that "
-            "no allowed cell can measure"
+            "more temperatures or pH values, lengthen the maximum duration, or drop a pathway "
+            "that no allowed cell can measure"
         )
     used = alloc > 0
     ev = _evaluate(

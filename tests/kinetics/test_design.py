@@ -389,8 +389,9 @@ def test_exhaustive_search_is_optimal_on_a_small_problem():
         for (t, p), n in zip(cells, counts):
             if n:
                 k = float(np.exp(ESTER.ln_k(t, p)[0]))
+                times = tuple(design.sampling_times_s(k, lab))
                 runs.append(design.DesignRun(temperature_K=t, pH=p, n_vessels=int(n),
-                                             sampling_times_s=tuple(design.sampling_times_s(k, lab))))
+                                             sampling_times_s=times))
         ev = design.evaluate_design(runs, ESTER, ESTER_FIELD, lab)
         if ev.identifiable and not ev.weak_pathways and not ev.ea_from_prior:
             best = min(best, ev.width_ratio[0])

@@ -33,7 +33,8 @@ class PathwayGuessIn(Strict):
         ge=-150, le=60,
         description="ln of kA or kB [L/(mol s)] or kN [1/s] at the reference temperature",
     )
-    Ea_J_per_mol: float = Field(ge=1_000, le=400_000, description="guessed activation energy [J/mol]")
+    Ea_J_per_mol: float = Field(ge=1_000, le=400_000,
+                                description="guessed activation energy [J/mol]")
     ln_k_ref_sd: float = Field(default=1.0, ge=0, le=20, description="uncertainty of ln_k_ref [-]")
     Ea_sd_J_per_mol: float = Field(default=15_000.0, ge=0, le=200_000,
                                    description="uncertainty of Ea [J/mol]")
@@ -53,7 +54,9 @@ class PriorIn(Strict):
     @model_validator(mode="after")
     def _prior_pair(self) -> "PriorIn":
         if (self.ea_prior_mean_J_per_mol is None) != (self.ea_prior_sd_J_per_mol is None):
-            raise ValueError("give both ea_prior_mean_J_per_mol and ea_prior_sd_J_per_mol, or neither")
+            raise ValueError(
+                "give both ea_prior_mean_J_per_mol and ea_prior_sd_J_per_mol, or neither"
+            )
         return self
 
     def to_kinetics(self) -> kdesign.KineticsPrior:
@@ -126,13 +129,16 @@ class LabIn(Strict):
     samples_per_vessel: int = Field(ge=3, le=30)
     analytical_error_percent: float = Field(gt=0, lt=50)
     error_model: Literal["proportional", "constant"] = "proportional"
-    loq_percent: float = Field(default=2.0, ge=0, lt=50, description="LOQ in % of the initial value")
+    loq_percent: float = Field(default=2.0, ge=0, lt=50,
+                               description="LOQ in % of the initial value")
     buffer_ionic_strength_M: float = Field(default=0.0, ge=0, le=1)
 
     @model_validator(mode="after")
     def _one_temperature_list(self) -> "LabIn":
         if (self.allowed_temperatures_K is None) == (self.allowed_temperatures_C is None):
-            raise ValueError("give exactly one of allowed_temperatures_K and allowed_temperatures_C")
+            raise ValueError(
+                "give exactly one of allowed_temperatures_K and allowed_temperatures_C"
+            )
         return self
 
     def to_kinetics(self) -> kdesign.LabConstraints:
@@ -148,7 +154,9 @@ class LabIn(Strict):
             analytical_error_percent=self.analytical_error_percent,
             error_model=self.error_model,
             loq_percent=self.loq_percent,
-            min_sampling_interval_s=float(units.time_to_s(self.min_sampling_interval, self.time_unit)),
+            min_sampling_interval_s=float(
+                units.time_to_s(self.min_sampling_interval, self.time_unit)
+            ),
             buffer_ionic_strength_M=self.buffer_ionic_strength_M,
         )
 
