@@ -926,7 +926,7 @@ def run_scenario(
     n_draws: int = 1000,
     level: float = 0.95,
     seed: int | None = None,
-    points_per_period: int = 16,
+    points_per_period: int = 8,
     rtol: float = 1e-7,
     max_points: int = 400_000,
 ) -> ScenarioResult:

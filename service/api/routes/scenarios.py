@@ -286,7 +286,7 @@ def _estimate_evaluations(scenario: Scenario, horizon_s: float) -> int:
     step = end / 256.0
     period = scenario.shortest_period_s()
     if period is not None:
-        step = min(step, period / 16.0)  # the default points_per_period of run_scenario
+        step = min(step, period / 8.0)  # the default points_per_period of run_scenario
     return 5 * int(math.ceil(end / step)) + 1
 
 
