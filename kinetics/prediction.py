@@ -356,11 +356,10 @@ def predict(
     hidden = np.zeros(T.size, dtype=bool)
     for p, ln_kmax_ref in surface.hidden_pathway_ln_k_ref_max.items():
         j = PATHWAYS.index(p)
-        ln_hidden = (
-            ln_kmax_ref
-            - surface.hidden_pathway_Ea_J_per_mol / R * (1.0 / T - 1.0 / surface.reference_temperature_K)
-            + lnc[:, j]
+        from_ref = surface.hidden_pathway_Ea_J_per_mol / R * (
+            1.0 / T - 1.0 / surface.reference_temperature_K
         )
+        ln_hidden = ln_kmax_ref - from_ref + lnc[:, j]
         hidden |= ln_hidden - lnk > math.log(HIDDEN_PATHWAY_FLAG_RATIO) + 1e-9
     flags["uncharacterised_pathway_matters"] = hidden
 

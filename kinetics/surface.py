@@ -596,7 +596,9 @@ def _conditions(
     bad = sal < 0.0
     if bad.any():
         i = int(np.argmax(bad))
-        raise InputError(f"salinity must be >= 0; got {float(sal[i])!r} at index {_index(i, shape)}")
+        raise InputError(
+            f"salinity must be >= 0; got {float(sal[i])!r} at index {_index(i, shape)}"
+        )
     return T, ph, ionic, sal, tuple(shape)
 
 
@@ -606,7 +608,9 @@ def _index(i: int, shape: tuple[int, ...]) -> Any:
     return tuple(int(v) for v in np.unravel_index(i, shape))
 
 
-def _ln_concentrations(T: np.ndarray, ph: np.ndarray, ionic: np.ndarray, sal: np.ndarray) -> np.ndarray:
+def _ln_concentrations(
+    T: np.ndarray, ph: np.ndarray, ionic: np.ndarray, sal: np.ndarray
+) -> np.ndarray:
     """ln of the concentration factor of each pathway, shape (n, 3)."""
     h, oh = water.hydronium_hydroxide_molar(ph, T, ionic, sal)
     out = np.zeros((T.size, 3))
@@ -768,7 +772,8 @@ class SurfaceFit:
         """
         lnc = lnc_all[:, self._pathway_index()]
         u = self.reference_temperature_K / T - 1.0
-        offset = np.log(T / self.reference_temperature_K) if self.temperature_model == "eyring" else 0.0
+        eyring = self.temperature_model == "eyring"
+        offset = np.log(T / self.reference_temperature_K) if eyring else 0.0
         if parameters is None:
             params = np.asarray(self.estimates, dtype=float)
             many = False
@@ -825,7 +830,9 @@ class SurfaceFit:
             Shape of the broadcast conditions, or (n_draws, n_conditions)
             (conditions flattened) when ``parameters`` is given.
         """
-        terms, _, _, shape, many = self._terms(temperature_K, pH, ionic_strength_M, salinity, parameters)
+        terms, _, _, shape, many = self._terms(
+            temperature_K, pH, ionic_strength_M, salinity, parameters
+        )
         if many:
             return _logsumexp(terms, axis=1)
         return _logsumexp(terms, axis=1).reshape(shape)
@@ -902,7 +909,9 @@ class SurfaceFit:
             Pathway name -> fractions (summing to 1 over the model's
             pathways), in the shape :meth:`ln_k` returns.
         """
-        terms, _, _, shape, many = self._terms(temperature_K, pH, ionic_strength_M, salinity, parameters)
+        terms, _, _, shape, many = self._terms(
+            temperature_K, pH, ionic_strength_M, salinity, parameters
+        )
         axis = 1
         lnk = _logsumexp(terms, axis=axis)
         out = {}
@@ -998,12 +1007,16 @@ class SurfaceFit:
             pathways = tuple(str(p) for p in data["pathways"])
             model = str(data["temperature_model"])
             if model not in TEMPERATURE_MODELS or any(p not in PATHWAYS for p in pathways):
-                raise InputError(f"stored surface fit has unknown model {model!r} or pathways {pathways!r}")
+                raise InputError(
+                    f"stored surface fit has unknown model {model!r} or pathways {pathways!r}"
+                )
             names = tuple(str(n) for n in data["parameter_names"])
             est = _readonly(data["estimates"])
             cov = _readonly(data["covariance"])
             if est.shape != (len(names),) or cov.shape != (len(names), len(names)):
-                raise InputError("stored surface fit: estimates/covariance do not match parameter_names")
+                raise InputError(
+                    "stored surface fit: estimates/covariance do not match parameter_names"
+                )
             prior = data.get("ea_prior_J_per_mol")
             cands = tuple(
                 PathwayCandidate(
@@ -1141,7 +1154,9 @@ def moderate_variances(se2: Any, dof: Any) -> tuple[np.ndarray, float]:
         return s2.copy(), 0.0
     e = np.log(s2) - special.digamma(nu / 2.0) + np.log(nu / 2.0)
     excess = float(np.var(e, ddof=1) - np.mean(special.polygamma(1, nu / 2.0)))
-    d0 = min(2.0 * _trigamma_inverse(excess), SE_POOLING_MAX_DOF) if excess > 0.0 else SE_POOLING_MAX_DOF
+    d0 = SE_POOLING_MAX_DOF
+    if excess > 0.0:
+        d0 = min(2.0 * _trigamma_inverse(excess), SE_POOLING_MAX_DOF)
     if d0 >= SE_POOLING_MAX_DOF:
         # one common variance: its unbiased pooled estimate
         s0_2 = float(np.sum(nu * s2) / np.sum(nu))
@@ -1284,7 +1299,8 @@ class _Candidate:
                 fun, z0, jac=jac, method="lm", x_scale="jac",
                 ftol=1e-12, xtol=1e-12, gtol=1e-12, max_nfev=100 * (self.p + 1),
             )
-            if res.status > 0 and np.all(np.isfinite(res.x)) and np.all(res.x > lo) and np.all(res.x < hi):
+            inside = np.all(np.isfinite(res.x)) and np.all(res.x > lo) and np.all(res.x < hi)
+            if res.status > 0 and inside:
                 z = res.x
         except (ValueError, FloatingPointError):
             z = None
@@ -1309,7 +1325,9 @@ class _Candidate:
                 break
         if not np.all(np.isfinite(z)):
             raise ConvergenceError(f"the surface fit for pathways {self.subset} did not converge")
-        at_bound = (np.abs(z - lo) < 1e-6 * (1 + np.abs(lo))) | (np.abs(z - hi) < 1e-6 * (1 + np.abs(hi)))
+        at_bound = (np.abs(z - lo) < 1e-6 * (1 + np.abs(lo))) | (
+            np.abs(z - hi) < 1e-6 * (1 + np.abs(hi))
+        )
         return z, at_bound
 
     def q_stat(self, z: np.ndarray, tau2: float) -> float:
@@ -1618,7 +1636,8 @@ def fit_surface(
     """
     if temperature_model not in TEMPERATURE_MODELS:
         raise InputError(
-            f"unknown temperature_model {temperature_model!r}; valid: {', '.join(TEMPERATURE_MODELS)}"
+            f"unknown temperature_model {temperature_model!r}; valid: "
+            f"{', '.join(TEMPERATURE_MODELS)}"
         )
     if isinstance(measurements, RateMeasurement):
         measurements = [measurements]
@@ -1686,7 +1705,10 @@ def fit_surface(
             result = cand.fit()
             reason = _identifiability(cand, result)
         if reason:
-            candidates.append(PathwayCandidate(subset, False, reason, cand.p_free, None if result is None else result["rss"], None, prior_paths))
+            rss = None if result is None else result["rss"]
+            candidates.append(
+                PathwayCandidate(subset, False, reason, cand.p_free, rss, None, prior_paths)
+            )
             continue
         aicc = _aicc(design, cand, result)
         pc = PathwayCandidate(subset, True, "", cand.p_free, result["rss"], aicc, prior_paths)
@@ -1696,7 +1718,8 @@ def fit_surface(
     if not fitted:
         if fixed is not None:
             reason = candidates[0].reason
-            err = DataError if design.n - candidates[0].n_params < 1 and len(fixed) <= n_ph else IdentifiabilityError
+            too_few = design.n - candidates[0].n_params < 1 and len(fixed) <= n_ph
+            err = DataError if too_few else IdentifiabilityError
             raise err(f"cannot fit the {'+'.join(fixed)} model: {reason}")
         details = "; ".join(f"{'+'.join(c.pathways)}: {c.reason}" for c in candidates)
         raise IdentifiabilityError(
@@ -1710,7 +1733,9 @@ def fit_surface(
         if finite:
             chosen_idx = min(finite, key=lambda i: fitted[i][0].aicc)
         else:
-            chosen_idx = min(range(len(fitted)), key=lambda i: (fitted[i][0].n_params, fitted[i][0].rss))
+            chosen_idx = min(
+                range(len(fitted)), key=lambda i: (fitted[i][0].n_params, fitted[i][0].rss)
+            )
     chosen_pc, cand, result = fitted[chosen_idx]
     candidates = [
         PathwayCandidate(c.pathways, c.identifiable, c.reason, c.n_params, c.rss, c.aicc,
@@ -1760,7 +1785,8 @@ def fit_surface(
     for p in unchar:
         j = _SORT_KEY[p]
         # ln K_ref such that the pathway alone would not exceed any measured rate
-        hidden[p] = float(np.min(design.y - design.lnc[:, j] + (hidden_ea / _R) * (1.0 / design.T - 1.0 / tref)))
+        to_ref = (hidden_ea / _R) * (1.0 / design.T - 1.0 / tref)
+        hidden[p] = float(np.min(design.y - design.lnc[:, j] + to_ref))
 
     used_prior = bool(cand.prior_paths)
     return SurfaceFit(

@@ -120,7 +120,8 @@ def test_automatic_pathway_selection_keeps_the_calibration():
     for method in cov_auto:
         a, f = cov_auto[method], cov_fixed[method]
         print(f"coverage, {n} studies, {method}: auto inside {100 * a[0]:.1f} % / outside "
-              f"{100 * a[1]:.1f} %; fixed pathways inside {100 * f[0]:.1f} % / outside {100 * f[1]:.1f} %")
+              f"{100 * a[1]:.1f} %; fixed pathways inside {100 * f[0]:.1f} % / outside "
+              f"{100 * f[1]:.1f} %")
     assert right >= 0.9
     for method in cov_auto:
         assert np.all(cov_auto[method] >= cov_fixed[method] - 3.0 / n - 1e-12), method

@@ -34,7 +34,9 @@ ORBITAMIDE = {
 def true_k(T, pH):
     h, oh = water.hydronium_hydroxide_molar(pH, T)
     conc = {"acid": h, "neutral": 1.0, "base": oh}
-    return sum(math.exp(a - ea / R * (1 / T - 1 / TREF)) * conc[p] for p, (a, ea) in ORBITAMIDE.items())
+    return sum(
+        math.exp(a - ea / R * (1 / T - 1 / TREF)) * conc[p] for p, (a, ea) in ORBITAMIDE.items()
+    )
 
 
 def runs(seed=1, temps=(293.15, 313.15, 333.15), phs=(4.0, 7.0, 9.0), noise=0.05, se=True):
@@ -43,8 +45,8 @@ def runs(seed=1, temps=(293.15, 313.15, 333.15), phs=(4.0, 7.0, 9.0), noise=0.05
     for T in temps:
         for pH in phs:
             k = true_k(T, pH) * math.exp(noise * rng.standard_normal())
-            out.append(RateMeasurement(T, pH, k, se_ln_k=noise if se else None, se_dof=6 if se else None,
-                                       label="invented"))
+            out.append(RateMeasurement(T, pH, k, se_ln_k=noise if se else None,
+                                       se_dof=6 if se else None, label="invented"))
     return out
 
 
@@ -65,7 +67,8 @@ def test_delta_method_equals_statsmodels_mean_and_observation_intervals():
     field_T = np.array([278.15, 293.15, 340.0])
     pred = predict(fit, field_T, 7.0, level=0.9)
     ols = sm.OLS(ln_k, sm.add_constant(1 / temps - 1 / TREF)).fit()
-    frame = ols.get_prediction(sm.add_constant(1 / field_T - 1 / TREF, has_constant="add")).summary_frame(alpha=0.1)
+    X_new = sm.add_constant(1 / field_T - 1 / TREF, has_constant="add")
+    frame = ols.get_prediction(X_new).summary_frame(alpha=0.1)
     assert_allclose(pred.ln_k, frame["mean"], rtol=1e-9)
     assert_allclose(pred.se_ln_k, frame["mean_se"], rtol=1e-7)
     assert_allclose(np.log(pred.k_ci_low_per_s), frame["mean_ci_lower"], rtol=1e-8)
@@ -143,7 +146,8 @@ def test_uncharacterised_pathway_flag_when_only_pH7_measured():
     pred = predict(fit, [313.15, 313.15, 313.15, 313.15], [7.0, 8.3, 5.5, 7.5])
     # at the measured pH a hidden pathway can be at most the measured rate; one pH unit
     # away it could be ten times larger
-    np.testing.assert_array_equal(pred.flags["uncharacterised_pathway_matters"], [False, True, True, True])
+    np.testing.assert_array_equal(pred.flags["uncharacterised_pathway_matters"],
+                                  [False, True, True, True])
     np.testing.assert_array_equal(pred.flags["pH_outside_range"], [False, True, True, True])
 
 

@@ -190,7 +190,8 @@ def test_exact_data_recovers_the_surface(temperature_model):
     if temperature_model == "arrhenius":
         for p, (a, ea) in VELTRAZINE.items():
             assert_allclose(fit.estimates[fit.parameter_names.index(f"ln_k_ref_{p}")], a, atol=1e-7)
-            assert_allclose(fit.estimates[fit.parameter_names.index(f"Ea_{p}_J_per_mol")], ea, rtol=1e-7)
+            j = fit.parameter_names.index(f"Ea_{p}_J_per_mol")
+            assert_allclose(fit.estimates[j], ea, rtol=1e-7)
     else:
         # Eyring: Ea = dH + R T (Eyring 1935), so dH is near Ea - R T_ref
         dH = fit.estimates[fit.parameter_names.index("dH_neutral_J_per_mol")]
@@ -247,7 +248,8 @@ def test_single_temperature_takes_ea_from_efsa_default():
 
 def test_pathway_at_one_temperature_gets_prior_only_for_that_pathway():
     # acid measured at 25 °C only, neutral and base at three temperatures
-    runs = standard_runs(VELTRAZINE, phs=(7.0, 9.0)) + standard_runs(VELTRAZINE, temps=(298.15,), phs=(4.0,))
+    runs = standard_runs(VELTRAZINE, phs=(7.0, 9.0))
+    runs += standard_runs(VELTRAZINE, temps=(298.15,), phs=(4.0,))
     fit = fit_surface(runs, pathways=PATHWAYS)
     assert fit.ea_from_prior == ("acid",)
 
@@ -275,7 +277,8 @@ def test_round_trip_gives_identical_predictions():
 
 def test_ln_k_with_parameter_draws_jacobian_and_contributions():
     rng = np.random.default_rng(4)
-    fit = fit_surface(standard_runs(VELTRAZINE, rng, se=0.03, noise=0.03, se_dof=6), pathways=PATHWAYS)
+    study = standard_runs(VELTRAZINE, rng, se=0.03, noise=0.03, se_dof=6)
+    fit = fit_surface(study, pathways=PATHWAYS)
     T = np.array([285.0, 300.0, 320.0, 340.0])
     pH = np.array([4.5, 6.0, 8.0, 9.5])
     draws = fit.sample_parameters(5, rng)
@@ -292,7 +295,8 @@ def test_ln_k_with_parameter_draws_jacobian_and_contributions():
         dn = fit.estimates.copy()
         up[j] += steps[j]
         dn[j] -= steps[j]
-        fd = (fit.ln_k(T, pH, parameters=up)[0] - fit.ln_k(T, pH, parameters=dn)[0]) / (2 * steps[j])
+        fd = fit.ln_k(T, pH, parameters=up)[0] - fit.ln_k(T, pH, parameters=dn)[0]
+        fd /= 2 * steps[j]
         assert_allclose(jac[:, j], fd, rtol=1e-5, atol=1e-6 * np.max(np.abs(fd)))
     contrib = fit.contributions(T, pH)
     assert_allclose(sum(contrib.values()), 1.0, rtol=1e-12)
@@ -304,7 +308,8 @@ def test_ln_k_with_parameter_draws_jacobian_and_contributions():
 
 def test_sample_parameters_reproduce_covariance():
     rng = np.random.default_rng(6)
-    fit = fit_surface(standard_runs(VELTRAZINE, rng, se=0.03, noise=0.03, se_dof=6), pathways=PATHWAYS)
+    study = standard_runs(VELTRAZINE, rng, se=0.03, noise=0.03, se_dof=6)
+    fit = fit_surface(study, pathways=PATHWAYS)
     draws = fit.sample_parameters(200_000, np.random.default_rng(1))
     se = fit.standard_errors
     assert_allclose((draws.mean(axis=0) - fit.estimates) / se, 0.0, atol=0.02)
@@ -355,7 +360,8 @@ def test_from_series_fit_and_from_dt50():
         (dict(temperature_K=298.15, pH=7.0, k_per_s=1e-6, se_ln_k=0.0), InputError, "se_ln_k"),
         (dict(temperature_K=298.15, pH=7.0, k_per_s=1e-6, se_dof=3), InputError, "without se_ln_k"),
         (dict(temperature_K=298.15, pH=7.0, k_per_s="fast"), InputError, "number"),
-        (dict(temperature_K=298.15, pH=7.0, k_per_s=1e-6, ionic_strength_M=-0.1), InputError, "ionic"),
+        (dict(temperature_K=298.15, pH=7.0, k_per_s=1e-6, ionic_strength_M=-0.1), InputError,
+         "ionic"),
     ],
 )
 def test_bad_measurements_raise_clear_errors(kwargs, error, match):
@@ -375,7 +381,9 @@ def test_bad_fit_requests_raise_clear_errors():
         fit_surface(runs, ea_prior_J_per_mol=(65e3, 0.0))
     with pytest.raises(InputError, match="kJ/mol given by mistake"):
         fit_surface(runs, ea_prior_J_per_mol=(65.4, 15.0))
-    mixed = runs[:4] + [RateMeasurement(r.temperature_K, r.pH, r.k_per_s, se_ln_k=0.05) for r in runs[4:]]
+    mixed = runs[:4] + [
+        RateMeasurement(r.temperature_K, r.pH, r.k_per_s, se_ln_k=0.05) for r in runs[4:]
+    ]
     with pytest.raises(InputError, match="every run or for none"):
         fit_surface(mixed)
     with pytest.raises(DataError, match="at least 2 runs"):
