@@ -66,6 +66,7 @@ __all__ = [
     "ERROR_MODELS",
     "CRITERIA",
     "EA_PRIOR_CHOICES",
+    "NAIVE_SAMPLING",
     "GAS_CONSTANT_J_PER_MOL_K",
     "PathwayGuess",
     "KineticsPrior",
@@ -92,6 +93,8 @@ DESIGN_PATHWAYS = PATHWAYS
 ERROR_MODELS = ("constant", "proportional")
 #: Design criteria: "local" at the prior guess, or "prior_median" (median over prior draws).
 CRITERIA = ("local", "prior_median")
+#: Sampling of the naive comparison design.
+NAIVE_SAMPLING = ("equal_over_duration", "rule")
 #: When a design may leave an activation energy to the fit's prior.
 EA_PRIOR_CHOICES = ("if_needed", "always", "never")
 
@@ -803,10 +806,12 @@ def sfo_se_ln_k(
 def sampling_times_s(expected_k_per_s: float, constraints: LabConstraints) -> np.ndarray:
     """Planned sampling times of one vessel [s].
 
-    Rule (common practice, no source): the first sample at time zero and the rest equally
-    spaced up to the time of 90 % expected decline, :math:`t_{end} = \\ln 10 / k`
-    (about 3.3 half-lives), so that the series spans enough decline to identify its rate
-    and check that it is first order. Equal spacing in time is equal spacing in ln C
+    Rule: the first sample at time zero and the rest equally spaced up to the time of
+    90 % expected decline, :math:`t_{end} = \\ln 10 / k` (about 3.3 half-lives), so that the
+    series spans enough decline to identify its rate and check that it is first order.
+    The end point follows OECD Test Guideline 111 (2004), whose higher tiers run until
+    90 % hydrolysis or for 30 days, whichever comes first (as its published summary
+    states); the equal spacing is common practice, no source. Equal spacing in time is equal spacing in ln C
     under SFO. :math:`t_{end}` is lengthened to respect the minimum sampling interval and
     shortened to the maximum duration; a run too slow to reach 90 % decline in the
     maximum duration is sampled over the whole duration, and the small decline it shows
@@ -1580,10 +1585,11 @@ class PreliminaryTestAdvice:
     """Whether to run the preliminary stability test before a full study.
 
     The preliminary test of OECD Test Guideline 111 (2004), "Hydrolysis as a Function of
-    pH" (the first tier): incubation for 5 days at 50 °C at pH 4, 7 and 9; a loss below
-    10 % at each pH marks the substance as hydrolytically stable (DT50 at 25 °C above
-    about one year) and generally no further hydrolysis test is needed (conditions and
-    criterion recalled from memory; consult the guideline itself).
+    pH" (its first tier, the preliminary test): incubation for 5 days at 50 °C at pH 4, 7
+    and 9; a loss below 10 % at each pH marks the substance as hydrolytically stable and
+    normally no further hydrolysis testing is needed (as the guideline's published
+    summary states it; the equivalence with a DT50 at 25 °C above about one year is
+    recalled from memory). Consult the guideline itself for the full conditions.
 
     Attributes
     ----------
@@ -1657,7 +1663,7 @@ def preliminary_test_advice(
         \\text{loss}(pH) = 1 - \\exp(-k_{obs}(50\\,°C, pH)\\; 5\\,d)
 
     under the prior guess at pH 4, 7 and 9 (the preliminary test of OECD Test
-    Guideline 111, 2004; conditions recalled from memory). The preliminary test is
+    Guideline 111, 2004, conditions as its published summary gives them). The test is
     recommended when the guess predicts a loss below 10 % at all three pH values.
 
     Parameters
@@ -1733,12 +1739,15 @@ def naive_design(
     *,
     temperatures_K: Sequence[float] | None = None,
     pH_values: Sequence[float] = (4.0, 7.0, 9.0),
+    sampling: str = "equal_over_duration",
 ) -> tuple[DesignRun, ...]:
     """A design of the same cost without design thinking, for comparison.
 
     The laboratory's vessels are spread round-robin over the given temperatures (default:
     the allowed one nearest 25 °C) × the allowed pH values nearest 4, 7 and 9, and every
-    vessel is sampled at equally spaced times over the maximum duration.
+    vessel is sampled at equally spaced times over the maximum duration
+    (``sampling="equal_over_duration"``) or by the rule of :func:`sampling_times_s`
+    (``sampling="rule"``, to see what the allocation alone gains).
 
     Parameters
     ----------
@@ -1750,11 +1759,14 @@ def naive_design(
         Temperatures of the naive design [K].
     pH_values : sequence of float
         Wanted pH values; each is replaced by the nearest allowed one.
+    sampling : str
+        "equal_over_duration" or "rule".
 
     Returns
     -------
     tuple of DesignRun
     """
+    _choice(sampling, "sampling", NAIVE_SAMPLING)
     allowed_t = np.array(constraints.allowed_temperatures_K)
     if temperatures_K is None:
         temps = [float(allowed_t[np.argmin(np.abs(allowed_t - 298.15))])]
@@ -1773,7 +1785,8 @@ def naive_design(
         if n == 0:
             continue
         k = float(np.exp(prior.ln_k(t, p, ion, 0.0)[0]))
-        runs.append(DesignRun(temperature_K=t, pH=p, n_vessels=n, sampling_times_s=times,
+        t_s = tuple(sampling_times_s(k, constraints)) if sampling == "rule" else times
+        runs.append(DesignRun(temperature_K=t, pH=p, n_vessels=n, sampling_times_s=t_s,
                               expected_k_per_s=k, expected_dt50_s=math.log(2.0) / k))
     return tuple(runs)
 
@@ -1901,9 +1914,10 @@ class DesignRecommendation:
 SAMPLING_RULE = (
     "Each vessel is sampled at time zero and then at equal intervals up to the time at "
     "which 90 % of the substance is expected to be gone (about 3.3 expected half-lives), "
-    "or up to the maximum duration if that comes first; intervals are never shorter than "
-    "the minimum sampling interval. Samples expected below the LOQ are not counted. "
-    "(Common practice, no source.) A run too slow to decline much within the maximum "
+    "or up to the maximum duration if that comes first (the end point of the higher tiers "
+    "of OECD Test Guideline 111, 2004: 90 % hydrolysis or 30 days); intervals are never "
+    "shorter than the minimum sampling interval. Samples expected below the LOQ are not "
+    "counted. (Equal spacing: common practice, no source.) A run too slow to decline much within the maximum "
     "duration is sampled over the whole duration; the Fisher information gives the small "
     "decline its correspondingly small weight."
 )
