@@ -164,7 +164,7 @@ def water_density_kg_m3(temperature_K: Any) -> Any:
 
     Reference: G. S. Kell, "Density, thermal expansivity, and compressibility of
     liquid water from 0 ° to 150 °C", J. Chem. Eng. Data 20 (1975) 97-105.
-    It agrees with the IAPWS-95 formulation to better than 1e-5 relative over
+    It agrees with the IAPWS-95 formulation to better than 2e-5 relative over
     0-100 °C (see the tests).
 
     Parameters
