@@ -818,6 +818,12 @@ def _integration_grid(
     n = max(int(math.ceil(end_s / step)), 1)
     base = np.linspace(0.0, end_s, n + 1)
     grid = np.unique(np.concatenate((base, nodes, scenario.kinks(0.0, end_s))))
+    if 5 * (grid.size - 1) + 1 > max_points:
+        raise InputError(
+            f"scenario {scenario.name!r}: the coarsest grid that resolves it over "
+            f"{end_s / DAY_S:.6g} d needs {5 * (grid.size - 1) + 1} rate evaluations, more "
+            f"than max_points={max_points}; shorten the horizon or raise max_points"
+        )
 
     def evaluate(g: np.ndarray) -> tuple[dict[str, np.ndarray], np.ndarray, np.ndarray]:
         c = scenario.conditions(_evaluation_points(g))
@@ -972,8 +978,10 @@ def run_scenario(
         Target error of the cumulative integral of k at every grid node (absolute
         below 1, i.e. the relative error of C/C0; relative above).
     max_points : int
-        Largest integration grid allowed; if reached, the result is flagged
-        ``integration_not_converged``.
+        Largest number of rate evaluations per curve (grid nodes plus four
+        Gauss-Legendre points per interval); if refinement reaches it, the result
+        is flagged ``integration_not_converged``; if even the coarsest grid needs
+        more, InputError.
 
     Returns
     -------

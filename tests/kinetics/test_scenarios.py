@@ -412,3 +412,14 @@ def test_real_surface_scenario_matches_quadrature(fitted_surface):
     # the pond is colder than every run (20-50 °C): flagged as extrapolated
     assert res.flags["temperature_outside_range"]
     assert res.caution == CAUTION_TEXT
+
+
+def test_grid_limits():
+    model = NeutralArrhenius()
+    sc = Scenario("daily", temperature_K=(Constant(290.0), DailyCycle(0.0, 3.0, 14.0)), pH=7.0)
+    with pytest.raises(InputError, match="shorten the horizon or raise max_points"):
+        run_scenario(model, sc, horizon_s=10 * YEAR_S, n_draws=0, max_points=10_000)
+    # a grid that starts within the limit but may not refine is flagged, not silently used
+    res = run_scenario(model, sc, horizon_s=30 * DAY_S, n_draws=0, max_points=3500, rtol=1e-15)
+    assert res.flags["integration_not_converged"]
+    assert any("limit of 3500 points" in n for n in res.notes)

@@ -72,6 +72,8 @@ _CLASS_WORDS = (
     ("epoxide", ("epoxide", "oxirane")),
 )
 _MAX_SERIES_POINTS = 10_000
+# largest integration grid (rate evaluations per curve) a request may use
+_MAX_GRID_EVALUATIONS = 4_000_000
 
 
 @lru_cache(maxsize=1)
@@ -304,6 +306,12 @@ def _run(surface: SurfaceFit, body: ScenarioOptions, max_evaluations: int) -> tu
     else:
         out = sorted(set(np.linspace(0.0, body.horizon_d, 366).tolist()) | set(report))
     n_eval = _estimate_evaluations(scenario, horizon_s)
+    if n_eval > _MAX_GRID_EVALUATIONS:
+        raise TooLarge(
+            f"the scenario needs about {n_eval} rate evaluations per curve (a daily cycle over "
+            f"{body.horizon_d:g} days); at most {_MAX_GRID_EVALUATIONS} are accepted: shorten "
+            "horizon_d"
+        )
     if body.n_draws and n_eval * body.n_draws > max_evaluations:
         raise TooLarge(
             f"{body.n_draws} draws x about {n_eval} rate evaluations exceed the limit of "
@@ -313,7 +321,7 @@ def _run(surface: SurfaceFit, body: ScenarioOptions, max_evaluations: int) -> tu
         surface, scenario, horizon_s=horizon_s,
         output_time_s=np.asarray(out, dtype=float) * DAY_S,
         n_draws=body.n_draws, level=body.level, seed=body.seed,
-        max_points=max(16 * n_eval, 100_000),
+        max_points=min(max(8 * n_eval, 200_000), _MAX_GRID_EVALUATIONS),
     )
     return scenario, result
 
