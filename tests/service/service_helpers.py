@@ -41,3 +41,21 @@ def make_study(client) -> tuple[int, int]:
     r = client.post("/v1/studies", json=study_body(sid))
     assert r.status_code == 201, r.text
     return sid, r.json()["id"]
+
+
+def post_demo(client) -> dict[str, int]:
+    """Post the invented demo scenario through the API; return substance name -> id."""
+    from service.demo import demo_payloads
+
+    ids = {}
+    for p in demo_payloads():
+        r = client.post("/v1/substances", json=p["substance"])
+        assert r.status_code == 201, r.text
+        sid = r.json()["id"]
+        r = client.post("/v1/studies", json={**p["study"], "substance_id": sid})
+        assert r.status_code == 201, r.text
+        study = r.json()["id"]
+        r = client.post("/v1/runs/batch", json={"runs": [{**run, "study_id": study} for run in p["runs"]]})
+        assert r.status_code == 201, r.text
+        ids[p["substance"]["name"]] = sid
+    return ids
