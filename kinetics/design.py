@@ -267,9 +267,9 @@ class KineticsPrior:
         \\ln k_p(T) = \\ln k_{p,ref} - \\frac{E_{a,p}}{R}\\left(\\frac{1}{T} -
         \\frac{1}{T_{ref}}\\right)
 
-    (pH-rate profile of specific acid, neutral and specific base catalysed hydrolysis,
-    e.g. Schwarzenbach, Gschwend & Imboden, *Environmental Organic Chemistry*, 2nd ed.,
-    Wiley 2003, ch. 13; Arrhenius, Z. phys. Chem. 4 (1889) 226), with [H+] and [OH-] from
+    (pH-rate profile of specific acid, neutral and specific base catalysed hydrolysis:
+    Mabey & Mill, J. Phys. Chem. Ref. Data 7 (1978) 383, as :mod:`kinetics.surface`
+    cites it; Arrhenius, Z. phys. Chem. 4 (1889) 226), with [H+] and [OH-] from
     :func:`kinetics.water.hydronium_hydroxide_molar`.
 
     Parameters
@@ -1103,6 +1103,42 @@ class DesignEvaluation:
     def n_vessels(self) -> int:
         """Total number of vessels."""
         return sum(r.n_vessels for r in self.runs)
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-safe form (infinite widths become null)."""
+
+        def num(x: float) -> float | None:
+            return float(x) if math.isfinite(float(x)) else None
+
+        fields = []
+        for i, f in enumerate(self.field_conditions):
+            fields.append({
+                "temperature_K": f.temperature_K,
+                "pH": f.pH,
+                "salinity": f.salinity,
+                "ionic_strength_M": f.ionic_strength_M,
+                "label": f.label,
+                "expected_dt50_s": num(self.dt50_s[i]),
+                "se_ln_k": num(self.se_ln_k[i]),
+                "width_ratio": num(self.width_ratio[i]),
+                "variance_by_run": self.variance_by_run[i],
+                "variance_by_parameter": self.variance_by_parameter[i],
+                "variance_by_pathway": self.variance_by_pathway[i],
+                "between_run_scatter_share": num(self.scatter_share[i]),
+            })
+        return {
+            "runs": [r.to_dict() for r in self.runs],
+            "n_vessels": self.n_vessels,
+            "identifiable": self.identifiable,
+            "problem": self.problem,
+            "dof": self.dof,
+            "level": self.level,
+            "ea_from_prior": list(self.ea_from_prior),
+            "pathway_se_ln_k": {k: num(v) for k, v in self.pathway_se_ln_k.items()},
+            "weak_pathways": list(self.weak_pathways),
+            "field_conditions": fields,
+            "caution": self.caution,
+        }
 
 
 def _run_key(temperature_K: float, pH: float) -> str:

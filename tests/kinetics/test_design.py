@@ -324,6 +324,8 @@ def test_design_without_enough_ph_levels_is_not_identifiable():
     assert np.all(np.isinf(ev.width_ratio))
     with pytest.raises(DataError, match="pH levels"):
         ev.interval()
+    out = json.loads(json.dumps(ev.to_dict(), allow_nan=False))
+    assert out["identifiable"] is False and out["field_conditions"][0]["width_ratio"] is None
 
 
 # ---------------------------------------------------------------------------------------

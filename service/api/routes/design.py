@@ -184,6 +184,71 @@ class DesignRequest(Strict):
         return self
 
 
+class RunPlanIn(Strict):
+    """One planned design point of the laboratory's own design (temperature_K or _C)."""
+
+    temperature_K: Optional[float] = None
+    temperature_C: Optional[float] = None
+    pH: float = Field(ge=0, le=14)
+    n_vessels: int = Field(ge=1, le=60)
+    sampling_times: list[float] = Field(min_length=3, max_length=30,
+                                        description="sampling times of each vessel, in time_unit")
+
+    @model_validator(mode="after")
+    def _one_temperature(self) -> "RunPlanIn":
+        if (self.temperature_K is None) == (self.temperature_C is None):
+            raise ValueError("give exactly one of temperature_K and temperature_C")
+        if any(t < 0 for t in self.sampling_times):
+            raise ValueError("sampling times must be >= 0")
+        return self
+
+    def temperature(self) -> float:
+        if self.temperature_K is not None:
+            return self.temperature_K
+        return float(units.celsius_to_kelvin(self.temperature_C))
+
+
+class EvaluateRequest(Strict):
+    """A laboratory's own design, to see what precision it would give."""
+
+    prior: Optional[PriorIn] = None
+    prior_from_substance: Optional[StoredPriorIn] = None
+    field_conditions: list[FieldConditionIn] = Field(min_length=1, max_length=20)
+    runs: list[RunPlanIn] = Field(min_length=1, max_length=60)
+    time_unit: TimeUnit = "d"
+    analytical_error_percent: float = Field(gt=0, lt=50)
+    error_model: Literal["proportional", "constant"] = "proportional"
+    loq_percent: float = Field(default=2.0, ge=0, lt=50)
+    buffer_ionic_strength_M: float = Field(default=0.0, ge=0, le=1)
+    level: float = Field(default=0.95, gt=0, lt=1)
+
+    @model_validator(mode="after")
+    def _one_prior(self) -> "EvaluateRequest":
+        if (self.prior is None) == (self.prior_from_substance is None):
+            raise ValueError("give exactly one of prior and prior_from_substance")
+        if sum(r.n_vessels for r in self.runs) > 60:
+            raise ValueError("at most 60 vessels in all can be evaluated")
+        return self
+
+
+def _resolve_prior(request: Request, prior: Optional[PriorIn],
+                   stored_ref: Optional[StoredPriorIn]) -> tuple[kdesign.KineticsPrior, dict]:
+    if prior is not None:
+        return prior.to_kinetics(), {"kind": "request"}
+    stored = load_model(request.app.state.session_factory, substance_id=stored_ref.substance_id,
+                        options=stored_ref.fit_options)
+    out = kdesign.KineticsPrior.from_surface_fit(
+        stored.result.surface,
+        extra_sd_ln_k=stored_ref.extra_sd_ln_k,
+        extra_sd_Ea_J_per_mol=stored_ref.extra_sd_Ea_J_per_mol,
+        between_run_sd_ln_k=stored_ref.between_run_sd_ln_k,
+        label=stored.substance_name,
+    )
+    source = {"kind": "stored_substance", "substance_id": stored_ref.substance_id,
+              "substance_name": stored.substance_name, "data_version": stored.data_version}
+    return out, source
+
+
 @router.post(
     "",
     summary="Recommend a hydrolysis study design for a target DT50 precision",
@@ -198,22 +263,7 @@ def recommend(
     of the two-stage fit (series, then rate surface). Answers 422 with an explanation when
     the constraints cannot identify the pathways of the prior, 404 for an unknown
     substance. Nothing is stored."""
-    if body.prior is not None:
-        prior = body.prior.to_kinetics()
-        source = {"kind": "request"}
-    else:
-        ref = body.prior_from_substance
-        stored = load_model(request.app.state.session_factory, substance_id=ref.substance_id,
-                            options=ref.fit_options)
-        prior = kdesign.KineticsPrior.from_surface_fit(
-            stored.result.surface,
-            extra_sd_ln_k=ref.extra_sd_ln_k,
-            extra_sd_Ea_J_per_mol=ref.extra_sd_Ea_J_per_mol,
-            between_run_sd_ln_k=ref.between_run_sd_ln_k,
-            label=stored.substance_name,
-        )
-        source = {"kind": "stored_substance", "substance_id": ref.substance_id,
-                  "substance_name": stored.substance_name, "data_version": stored.data_version}
+    prior, source = _resolve_prior(request, body.prior, body.prior_from_substance)
     rec = kdesign.recommend_design(
         prior,
         [f.to_kinetics() for f in body.field_conditions],
@@ -225,3 +275,45 @@ def recommend(
         ea_prior_allowed=body.ea_prior_allowed,
     )
     return {"prior": prior.to_dict(), "prior_source": source, **rec.to_dict()}
+
+
+@router.post(
+    "/evaluate",
+    summary="Expected DT50 precision of a laboratory's own study design",
+)
+def evaluate(
+    request: Request,
+    body: EvaluateRequest,
+    _p: Annotated[Principal, Depends(require_scope("read"))],
+) -> dict:
+    """The Fisher-information precision of a given design at the field condition(s): the
+    expected interval width ratio, the degrees of freedom of the surface fit, which
+    pathways take their activation energy from the prior, which pathways the design
+    leaves poorly determined (`weak_pathways`), and which runs dominate the variance.
+    `identifiable` is false, with `problem` saying why, when the surface fit could not
+    use the design at all. Nothing is stored."""
+    prior, source = _resolve_prior(request, body.prior, body.prior_from_substance)
+    runs = [
+        kdesign.DesignRun(
+            temperature_K=r.temperature(), pH=r.pH, n_vessels=r.n_vessels,
+            sampling_times_s=tuple(float(x) for x in units.time_to_s(r.sampling_times,
+                                                                      body.time_unit)),
+        )
+        for r in body.runs
+    ]
+    longest = max(max(r.sampling_times_s) for r in runs)
+    lab = kdesign.LabConstraints(
+        allowed_temperatures_K=tuple(r.temperature_K for r in runs),
+        allowed_pH=tuple(r.pH for r in runs),
+        max_duration_s=longest if longest > 0 else 1.0,
+        n_vessels=sum(r.n_vessels for r in runs),
+        samples_per_vessel=min(len(r.sampling_times_s) for r in runs),
+        analytical_error_percent=body.analytical_error_percent,
+        error_model=body.error_model,
+        loq_percent=body.loq_percent,
+        min_sampling_interval_s=0.0,
+        buffer_ionic_strength_M=body.buffer_ionic_strength_M,
+    )
+    ev = kdesign.evaluate_design(runs, prior, [f.to_kinetics() for f in body.field_conditions],
+                                 lab, level=body.level)
+    return {"prior": prior.to_dict(), "prior_source": source, **ev.to_dict()}

@@ -143,3 +143,44 @@ def test_response_is_strict_json(client):
     r = client.post("/v1/design", json=_body())
     assert r.status_code == 200
     json.loads(r.text, parse_constant=lambda c: (_ for _ in ()).throw(ValueError(c)))
+
+
+def _evaluate_body(runs):
+    return {
+        "prior": EXAMPLE["request"]["prior"],
+        "field_conditions": EXAMPLE["request"]["field_conditions"],
+        "runs": runs,
+        "time_unit": "d",
+        "analytical_error_percent": 3.0,
+    }
+
+
+def test_evaluate_the_recommended_design_gives_the_same_width(client):
+    out = client.post("/v1/design", json=_body()).json()
+    runs = [{"temperature_K": r["temperature_K"], "pH": r["pH"], "n_vessels": r["n_vessels"],
+             "sampling_times": [t / 86400.0 for t in r["sampling_times_s"]]}
+            for r in out["runs"]]
+    r = client.post("/v1/design/evaluate", json=_evaluate_body(runs))
+    assert r.status_code == 200, r.text
+    ev = r.json()
+    assert ev["identifiable"] is True and ev["caution"] == CAUTION_TEXT
+    assert ev["field_conditions"][0]["width_ratio"] == pytest.approx(
+        out["field_conditions"][0]["width_ratio"], rel=1e-9)
+
+
+def test_evaluate_a_design_that_cannot_work_says_why(client):
+    runs = [{"temperature_C": t, "pH": 9.0, "n_vessels": 2, "sampling_times": [0, 1, 2, 4]}
+            for t in (20.0, 40.0)]
+    r = client.post("/v1/design/evaluate", json=_evaluate_body(runs))
+    assert r.status_code == 200, r.text
+    ev = r.json()
+    assert ev["identifiable"] is False
+    assert "pH levels" in ev["problem"]
+    assert ev["field_conditions"][0]["width_ratio"] is None
+
+
+def test_evaluate_rejects_negative_times(client):
+    runs = [{"temperature_C": 20.0, "pH": 9.0, "n_vessels": 2, "sampling_times": [0, -1, 2]}]
+    r = client.post("/v1/design/evaluate", json=_evaluate_body(runs))
+    assert r.status_code == 422
+    assert "sampling times must be >= 0" in r.text
