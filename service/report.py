@@ -1097,7 +1097,8 @@ def _surface_section(data: ReportData) -> str:
                 else False
             note = "" if _get(cand, "identifiable") in (None, True) else \
                 f"not identifiable: {_get(cand, 'reason') or 'see the fit'}"
-            out.append(f"<tr><td>{_esc(paths_text)}{' (chosen)' if chosen else ''}</td>"
+            out.append(f"<tr><td class=nowrap>{_esc(paths_text)}"
+                       f"{' (chosen)' if chosen else ''}</td>"
                        f"<td class=num>{format_number(aicc, 4)}</td>"
                        f'<td class="small">{_esc(note)}</td></tr>')
         out.append("</tbody></table>")

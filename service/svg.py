@@ -488,6 +488,25 @@ def _axis_ticks(frame: _Frame, axis: Axis, *, horizontal: bool) -> str:
         ticks = nice_ticks(lo, hi, 7 if horizontal else 6)
         step = ticks[1] - ticks[0] if len(ticks) > 1 else 0.0
     parts = ['<g class="ticks">']
+    if axis.log and len(ticks) > 1 and ticks[1] / ticks[0] > 10.5:
+        # labels skip decades: faint unlabelled lines at the decades in between
+        d0, d1 = math.ceil(math.log10(lo) - 1e-9), math.floor(math.log10(hi) + 1e-9)
+        for d in range(d0, d1 + 1):
+            v = 10.0 ** d
+            if any(abs(v / t - 1) < 1e-9 for t in ticks):
+                continue
+            if horizontal:
+                x = frame.px(v)
+                parts.append(f'<line x1="{_fmt(x)}" x2="{_fmt(x)}" y1="{_fmt(frame.top)}" '
+                             f'y2="{_fmt(frame.top + frame.height)}" stroke="#ebe7dc" '
+                             f'stroke-width="0.6"/>')
+            else:
+                y = frame.py(v)
+                parts.append(f'<line x1="{_fmt(frame.left)}" '
+                             f'x2="{_fmt(frame.left + frame.width)}" y1="{_fmt(y)}" '
+                             f'y2="{_fmt(y)}" stroke="#ebe7dc" stroke-width="0.6"/>'
+                             f'<line x1="{_fmt(frame.left - 3)}" x2="{_fmt(frame.left)}" '
+                             f'y1="{_fmt(y)}" y2="{_fmt(y)}" stroke="#333"/>')
     for t in ticks:
         label = _esc(_tick_label(t, axis.log, step))
         if horizontal:

@@ -133,18 +133,24 @@ def report_file(tmp_path_factory) -> Path:
     return page
 
 
-def test_plots_render_with_the_expected_series(chromium, report_file, tmp_path):
+def _probe(chromium: str, report_file: Path, tmp_path: Path) -> dict:
+    """Open the report with the probe script; return what it measured."""
     probed = tmp_path / "probed.html"
     probed.write_text(report_file.read_text(encoding="utf-8").replace("</body>",
                                                                       _PROBE + "</body>"),
                       encoding="utf-8")
     done = _chromium(chromium, tmp_path / "profile-dom", "--dump-dom",
-                     "--virtual-time-budget=10000", probed.as_uri())
+                     "--window-size=1280,2000", "--virtual-time-budget=10000",
+                     probed.as_uri())
     assert done.returncode == 0, done.stderr[-2000:]
     reader = _ProbeReader()
     reader.feed(done.stdout)
     assert reader.text, "the probe did not run: " + done.stdout[:500]
-    result = json.loads(reader.text)
+    return json.loads(reader.text)
+
+
+def test_plots_render_with_the_expected_series(chromium, report_file, tmp_path):
+    result = _probe(chromium, report_file, tmp_path)
     plots = {p["id"]: p for p in result["plots"]}
     # Orbitamide (invented): 3 temperatures, 9 series runs
     assert plots["profile-measured"]["declared"] == 6
@@ -166,7 +172,9 @@ def test_screenshots_are_saved_as_artifacts(chromium, report_file, tmp_path):
     ARTIFACTS.mkdir(exist_ok=True)
     top = ARTIFACTS / "report-orbitamide-top.png"
     full = ARTIFACTS / "report-orbitamide-full.png"
-    for target, size in ((top, "1280,2300"), (full, "1280,9400")):
+    page_height = int(_probe(chromium, report_file, tmp_path)["pageHeight"])
+    assert page_height > 3000  # nine run cards, five summary plots and the tables
+    for target, size in ((top, "1280,2300"), (full, f"1280,{page_height}")):
         if target.exists():
             target.unlink()
         done = _chromium(chromium, tmp_path / f"profile-{target.stem}",
