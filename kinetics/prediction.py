@@ -19,7 +19,7 @@ parameters,
     \\ln \\hat k \\pm t_{1-\\alpha/2,\\nu}\\,\\mathrm{se}, \\qquad
     \\ln \\hat k \\pm t_{1-\\alpha/2,\\nu}\\sqrt{\\mathrm{se}^2 + \\sigma_\\mathrm{run}^2}
 
-(e.g. Seber and Wild, "Nonlinear Regression", Wiley 1989, section 5.1), with
+(e.g. Seber and Wild, "Nonlinear Regression", Wiley 1989), with
 :math:`J = \\partial \\ln k/\\partial\\theta`, :math:`\\Sigma` the parameter
 covariance and :math:`\\nu` the residual degrees of freedom of the fit.
 Student's t (not the normal quantile) is used because the scale of the run
@@ -94,6 +94,8 @@ HIDDEN_PATHWAY_FLAG_RATIO = 1.0
 
 _LN2 = math.log(2.0)
 _LN10 = math.log(10.0)
+# ln of the largest rate bound reported (bounds are clipped to 1e-300..1e300 1/s).
+_LN_LIMIT = 690.0
 # Largest number of floats held at once by a Monte Carlo block.
 _MC_BLOCK_FLOATS = 4_000_000
 
@@ -138,7 +140,8 @@ class Prediction:
     se_ln_k : numpy.ndarray
         Delta-method standard error of ln k [-] (reported for both methods).
     k_ci_low_per_s, k_ci_high_per_s : numpy.ndarray
-        Confidence interval of the mean rate [1/s].
+        Confidence interval of the mean rate [1/s]. Bounds are limited to
+        1e-300..1e300 1/s (reached only by nearly uncharacterised surfaces).
     k_pi_low_per_s, k_pi_high_per_s : numpy.ndarray
         Prediction interval for a new run [1/s].
     dt50_s, dt50_ci_low_s, dt50_ci_high_s, dt50_pi_low_s, dt50_pi_high_s : numpy.ndarray
@@ -228,7 +231,8 @@ class Prediction:
             se = self.se_ln_k
             if kind == "prediction":
                 se = np.sqrt(se**2 + self.residual_scale**2)
-            lo, hi = np.exp(self.ln_k - tq * se), np.exp(self.ln_k + tq * se)
+            lo = np.exp(np.clip(self.ln_k - tq * se, -_LN_LIMIT, _LN_LIMIT))
+            hi = np.exp(np.clip(self.ln_k + tq * se, -_LN_LIMIT, _LN_LIMIT))
         else:
             raise InputError(
                 f"these Monte Carlo intervals were computed at level {self.level}; call predict "
@@ -374,6 +378,10 @@ def predict(
         extrap[outside] = np.abs(lnk[outside] - _logsumexp(terms_c, axis=1))
 
     k = np.exp(lnk)
+    # interval bounds beyond 1e+-300 (only for nearly uncharacterised surfaces with
+    # one or two degrees of freedom) are reported at that limit, never as inf or 0
+    bounds = (np.clip(v, -_LN_LIMIT, _LN_LIMIT) for v in (ci_lo, ci_hi, pi_lo, pi_hi))
+    ci_lo, ci_hi, pi_lo, pi_hi = bounds
     k_ci_lo, k_ci_hi = np.exp(ci_lo), np.exp(ci_hi)
     k_pi_lo, k_pi_hi = np.exp(pi_lo), np.exp(pi_hi)
     names = np.array(surface.pathways)

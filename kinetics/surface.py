@@ -9,7 +9,7 @@ pseudo-first-order rate constant of a run in a buffer is
     k_\\mathrm{obs}(T, \\mathrm{pH}, I) = k_A(T)\\,[\\mathrm{H^+}] + k_N(T)
         + k_B(T)\\,[\\mathrm{OH^-}]
 
-(Mabey and Mill, J. Phys. Chem. Ref. Data 7 (1978) 383-415, eq. 4), with
+(Mabey and Mill, J. Phys. Chem. Ref. Data 7 (1978) 383-415), with
 [H+] and [OH-] in mol/L from the measured pH, the temperature-dependent ion
 product of water and the ionic strength (:func:`kinetics.water.hydronium_hydroxide_molar`).
 Each pathway has its own temperature dependence, Arrhenius or Eyring.
@@ -1115,7 +1115,7 @@ def moderate_variances(se2: Any, dof: Any) -> tuple[np.ndarray, float]:
     Each run's :math:`s_i^2` (``se_ln_k`` squared, :math:`\nu_i` degrees of
     freedom) is an estimate from a short series; weighting runs by these noisy
     values makes the surface intervals too narrow. Following Smyth (Stat.
-    Appl. Genet. Mol. Biol. 3 (2004) article 3, section 6.2), the true
+    Appl. Genet. Mol. Biol. 3 (2004) article 3), the true
     variances are taken as draws from a scaled inverse chi-square
     distribution with :math:`d_0` degrees of freedom and scale :math:`s_0^2`,
     estimated by moments of :math:`\ln s_i^2`:
@@ -1132,7 +1132,9 @@ def moderate_variances(se2: Any, dof: Any) -> tuple[np.ndarray, float]:
     :math:`\ln s_i^2` is no larger than their sampling noise alone explains,
     :math:`d_0` is infinite (represented by :data:`SE_POOLING_MAX_DOF`) and
     every run gets the pooled variance
-    :math:`s_0^2 = \sum_i \nu_i s_i^2 / \sum_i \nu_i`.
+    :math:`s_0^2 = \sum_i \nu_i s_i^2 / \sum_i \nu_i`. With fewer than three
+    runs the spread cannot be judged and the variances are returned unchanged
+    (:math:`d_0 = 0`).
 
     Parameters
     ----------
@@ -1558,7 +1560,7 @@ def fit_surface(
             - \\frac{E_{a,p}}{R}\\left(\\frac{1}{T}-\\frac{1}{T_\\mathrm{ref}}\\right)
             + \\ln c_p\\right)
 
-    (Mabey and Mill 1978, eq. 4; Arrhenius 1889) or the Eyring law (Eyring
+    (Mabey and Mill 1978; Arrhenius 1889) or the Eyring law (Eyring
     1935), fitted by weighted nonlinear least squares on ln k with an analytic
     Jacobian (:func:`scipy.optimize.least_squares`); the statistical model
     (Paule-Mandel between-run variance, Knapp-Hartung scale) is described in
