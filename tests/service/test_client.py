@@ -3,6 +3,9 @@
 from __future__ import annotations
 
 import asyncio
+import socket
+import threading
+import time
 from pathlib import Path
 
 import httpx
@@ -199,10 +202,14 @@ def test_validation_detail_lists_the_problems(asgi_app):
     assert any("pH" in item["msg"] for item in info.value.detail)
 
 
-def test_unreachable_service(tmp_path):
-    from live_server import free_port
+def _free_port() -> int:
+    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
+        s.bind(("127.0.0.1", 0))
+        return int(s.getsockname()[1])
 
-    c = fc.Client(f"http://127.0.0.1:{free_port()}", retries=1, backoff_s=0.0, timeout=2.0)
+
+def test_unreachable_service(tmp_path):
+    c = fc.Client(f"http://127.0.0.1:{_free_port()}", retries=1, backoff_s=0.0, timeout=2.0)
     with pytest.raises(fc.ServiceUnreachable, match="after 2 attempt"):
         c.health()
     c.close()
@@ -213,25 +220,44 @@ def test_bad_retry_settings_are_refused():
         fc.Client(retries=-1)
 
 
+class _Uvicorn:
+    """A real uvicorn server for ``app`` on a free loopback port, in a thread of this test."""
+
+    def __init__(self, app):
+        import uvicorn
+
+        self.port = _free_port()
+        self.base_url = f"http://127.0.0.1:{self.port}"
+        self.server = uvicorn.Server(uvicorn.Config(app, host="127.0.0.1", port=self.port,
+                                                    log_level="warning"))
+        self.thread = threading.Thread(target=self.server.run, daemon=True)
+
+    def __enter__(self) -> "_Uvicorn":
+        self.thread.start()
+        deadline = time.monotonic() + 60.0
+        while not self.server.started:
+            if not self.thread.is_alive() or time.monotonic() > deadline:
+                raise RuntimeError("uvicorn did not start")
+            time.sleep(0.05)
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.server.should_exit = True
+        self.thread.join(timeout=60.0)
+
+
 @pytest.fixture
 def live(tmp_path):
-    from live_server import LiveServer
-
     url = f"sqlite:///{tmp_path / 'live.db'}"
-    upgrade_head(url)
-    server = LiveServer(url, tmp_path / "uvicorn.log").start()
-    yield server, url
-    server.stop()
+    app = create_app(Settings(database_url=url))  # startup runs the migrations
+    with _Uvicorn(app) as server:
+        yield server, app
+    app.state.engine.dispose()
 
 
 def test_sync_client_against_a_real_uvicorn(live):
-    from service.db import make_engine, make_session_factory
-
-    server, url = live
-    engine = make_engine(url)
-    key = issue_key(make_session_factory(engine), label="live client test", scopes="admin",
-                    actor="test setup")[1]
-    engine.dispose()
+    server, app = live
+    key = _key(app)
     with fc.Client(server.base_url, api_key=key, backoff_s=0.0) as c:
         assert c.ready()
         summary = c.import_csv(TEMPLATE.read_text(encoding="utf-8"))
