@@ -789,10 +789,11 @@ def _ln_k_estimates(model: RateModel, cond: Mapping[str, np.ndarray], name: str)
             f"scenario {name!r}: the rate model gave no finite ln k at temperature "
             f"{t[i]!r} K, pH {ph[i]!r}"
         )
-    if np.any(ln_k > 700.0):
+    if np.any(ln_k > 700.0) or np.any(ln_k < -690.0):
+        bad = float(ln_k.max()) if np.any(ln_k > 700.0) else float(ln_k.min())
         raise DataError(
-            f"scenario {name!r}: the rate model predicts k > 1e304 1/s (ln k {ln_k.max():.4g}); "
-            "the conditions are far outside anything the fit can describe"
+            f"scenario {name!r}: the rate model predicts ln k = {bad:.4g} (k outside "
+            "1e-300 to 1e304 1/s); the conditions are far outside anything the fit can describe"
         )
     return ln_k
 
@@ -1151,7 +1152,7 @@ def run_scenario(
                     f"ln_k with {p.shape[0]} parameter draws returned shape {lk.shape}, "
                     f"expected ({p.shape[0]}, {n_eval})"
                 )
-            if not np.all(np.isfinite(lk)) or np.any(lk > 700.0):
+            if not np.all(np.isfinite(lk)) or np.any(lk > 700.0) or np.any(lk < -690.0):
                 raise DataError(
                     f"scenario {scenario.name!r}: some parameter draws give no finite rate "
                     "constant; the fit is too uncertain for a Monte Carlo band"

@@ -423,3 +423,12 @@ def test_grid_limits():
     res = run_scenario(model, sc, horizon_s=30 * DAY_S, n_draws=0, max_points=3500, rtol=1e-15)
     assert res.flags["integration_not_converged"]
     assert any("limit of 3500 points" in n for n in res.notes)
+
+
+def test_absurd_rate_constants_raise_instead_of_dividing_by_zero():
+    from kinetics.errors import DataError
+
+    model = NeutralArrhenius(k_ref=1e-310)
+    sc = Scenario("dead", temperature_K=285.0, pH=7.0)
+    with pytest.raises(DataError, match="far outside"):
+        run_scenario(model, sc, n_draws=0)
