@@ -240,10 +240,9 @@ def declining_series(draw):
 
 @pytest.mark.skipif(series is None, reason="kinetics.series not available")
 @pytest.mark.xfail(
-    reason="known defect in kinetics.series: steep declines or nearly coincident early "
-    "times give OverflowError in SeriesFit.interval, numpy LinAlgError from the "
-    "start-value polyfit or Gauss-Newton step, or a RuntimeWarning, instead of a "
-    "KineticsError",
+    reason="known defect in kinetics.series: nearly coincident early sampling times "
+    "(e.g. 0 and 1e-300 d) make the start-value polyfit or the Gauss-Newton step raise "
+    "numpy LinAlgError, or emit RuntimeWarnings, instead of a KineticsError",
     strict=False,
 )
 @SLOW
