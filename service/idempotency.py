@@ -48,7 +48,7 @@ from starlette.datastructures import Headers
 
 from service.db import WRITE_OPTION
 from service.models import IdempotencyRecord, utcnow
-from service.security import credential_from_headers, hash_secret
+from service.security import SCOPE_KEY
 
 __all__ = [
     "HEADER",
@@ -315,19 +315,6 @@ def _store_response(
         session.close()
 
 
-def _key_is_live(factory: sessionmaker[Session], owner: str) -> bool:
-    """Whether the API key whose hash is ``owner`` exists and is not revoked."""
-    from service.models import ApiKey
-
-    with factory() as session:
-        return (
-            session.scalar(
-                select(ApiKey.id).where(ApiKey.key_hash == owner, ApiKey.revoked_at.is_(None))
-            )
-            is not None
-        )
-
-
 # --------------------------------------------------------------------------- middleware
 def _json_response(status: int, payload: Any, extra: list[tuple[bytes, bytes]] = ()) -> tuple:
     body = json.dumps(payload).encode("utf-8")
@@ -376,17 +363,31 @@ async def _send(send, response: tuple) -> None:
 
 
 class IdempotencyMiddleware:
-    """ASGI middleware giving every POST with an ``Idempotency-Key`` replay semantics.
+    """ASGI middleware giving the storing POSTs replay semantics for ``Idempotency-Key``.
 
-    Only requests that present an API key take part (without one the application answers
-    401 anyway). Requests whose handler writes nothing pass through unremembered.
+    The storing POSTs are those whose handler takes a write session (see
+    :func:`idempotent_operations`); other POSTs (calculations, predictions) ignore the
+    header. Only requests with a valid API key take part (the application refuses the
+    others with 401), so it must run inside :class:`service.security.KeyCheckMiddleware`.
+    A request that ends up writing nothing is not remembered.
     """
 
     def __init__(self, app):
         self.app = app
+        self._patterns: Optional[list[Any]] = None
+
+    def _applies(self, app: FastAPI, path: str) -> bool:
+        if self._patterns is None:
+            from starlette.routing import compile_path
+
+            self._patterns = [compile_path(p)[0] for p, _m in idempotent_operations(app)]
+        return any(pattern.match(path) for pattern in self._patterns)
 
     async def __call__(self, scope, receive, send):
         if scope["type"] != "http" or scope.get("method") != "POST":
+            await self.app(scope, receive, send)
+            return
+        if not self._applies(scope["app"], scope.get("path", "")):
             await self.app(scope, receive, send)
             return
         headers = Headers(scope=scope)
@@ -401,14 +402,15 @@ class IdempotencyMiddleware:
                 "detail": [{"loc": ["header", HEADER], "msg": problem, "type": "value_error"}],
             }))
             return
-        credential = credential_from_headers(headers)
-        if credential is None:
+        check = scope.get(SCOPE_KEY)
+        if check is None or check.key is None:
+            # no valid API key: the application refuses the request (401) by itself
             await self.app(scope, receive, send)
             return
         app = scope["app"]
         settings = app.state.settings
         factory = app.state.session_factory
-        owner = hash_secret(credential, settings.api_key_pepper)
+        owner = check.key.key_hash
         ttl_s = float(settings.idempotency_ttl_s)
 
         chunks = []
@@ -425,7 +427,7 @@ class IdempotencyMiddleware:
         )
 
         stored = await run_in_threadpool(_lookup, factory, owner, key, ttl_s)
-        if stored is not None and await run_in_threadpool(_key_is_live, factory, owner):
+        if stored is not None:
             await _send(send, await self._answer_from_record(factory, owner, key, request_hash, stored))
             return
 
@@ -561,13 +563,17 @@ def document_idempotency(app: FastAPI, schema: dict[str, Any]) -> dict[str, Any]
 
 
 def install_idempotency(app: FastAPI) -> None:
-    """Wire idempotent POSTs into ``app``: session hooks, middleware and OpenAPI header.
+    """Wire API-key checks and idempotent POSTs into ``app`` (middleware, session hooks,
+    the ``Idempotency-Key`` header in the OpenAPI document).
 
     Call it after ``app.state.session_factory`` is set and before outer middleware (the
     body size limit) is added.
     """
+    from service.security import install_key_check
+
     install_session_hooks(app.state.session_factory)
     app.add_middleware(IdempotencyMiddleware)
+    install_key_check(app)  # outside: the key is known before idempotency is decided
     build_schema = app.openapi
 
     def openapi() -> dict[str, Any]:

@@ -61,6 +61,8 @@ __all__ = [
     "revoke_api_key",
     "authenticate",
     "principal_for_request",
+    "KeyCheckMiddleware",
+    "install_key_check",
     "require_scope",
 ]
 
@@ -311,6 +313,58 @@ def authenticate(session: Session, secret: str, *, pepper: str = "") -> Optional
     )
 
 
+# --------------------------------------------------------------------------- middleware
+#: key of the ASGI scope entry where :class:`KeyCheckMiddleware` leaves its result
+SCOPE_KEY = "fieldrate.api_key"
+
+
+@dataclass(frozen=True)
+class KeyCheck:
+    """What the request presented: ``presented`` False (no key), else the valid key or None."""
+
+    presented: bool
+    key: Optional[AuthenticatedKey]
+
+
+def _check_with_factory(factory, secret: str, pepper: str) -> KeyCheck:
+    with factory() as session:
+        return KeyCheck(presented=True, key=authenticate(session, secret, pepper=pepper))
+
+
+class KeyCheckMiddleware:
+    """Look the presented API key up once per request, before any handler runs.
+
+    The result goes into the ASGI scope (:data:`SCOPE_KEY`), where
+    :func:`principal_for_request` and the idempotency middleware read it. Doing it here,
+    in a short session of its own, means no handler ever needs a second database
+    connection while it holds a write transaction.
+    """
+
+    def __init__(self, app):
+        self.app = app
+
+    async def __call__(self, scope, receive, send):
+        if scope["type"] == "http":
+            from starlette.concurrency import run_in_threadpool
+            from starlette.datastructures import Headers
+
+            secret = credential_from_headers(Headers(scope=scope))
+            if secret is None:
+                scope[SCOPE_KEY] = KeyCheck(presented=False, key=None)
+            else:
+                app = scope["app"]
+                scope[SCOPE_KEY] = await run_in_threadpool(
+                    _check_with_factory, app.state.session_factory, secret,
+                    app.state.settings.api_key_pepper,
+                )
+        await self.app(scope, receive, send)
+
+
+def install_key_check(app) -> None:
+    """Add :class:`KeyCheckMiddleware` to ``app`` (outside the idempotency middleware)."""
+    app.add_middleware(KeyCheckMiddleware)
+
+
 # --------------------------------------------------------------------------- FastAPI
 # These two only document the accepted headers in the OpenAPI schema ("Authorize" in
 # /docs); the credential itself is read by credential_from_headers.
@@ -337,16 +391,21 @@ def principal_for_request(
     from service.deps import Principal
 
     settings = request.app.state.settings
-    secret = credential_from_headers(request.headers)
-    if secret is None:
+    check = request.scope.get(SCOPE_KEY)
+    if check is None:  # the app was built without KeyCheckMiddleware
+        secret = credential_from_headers(request.headers)
+        check = (
+            KeyCheck(presented=False, key=None) if secret is None
+            else _check_with_factory(
+                request.app.state.session_factory, secret, settings.api_key_pepper
+            )
+        )
+    if not check.presented:
         scopes = frozenset({"read"}) if settings.anonymous_read else frozenset()
         return Principal(label=ANONYMOUS_LABEL, scopes=scopes)
-    factory = request.app.state.session_factory
-    with factory() as session:
-        key = authenticate(session, secret, pepper=settings.api_key_pepper)
-    if key is None:
+    if check.key is None:
         raise NotAuthenticated()
-    return Principal(label=key.label, scopes=key.scopes)
+    return Principal(label=check.key.label, scopes=check.key.scopes)
 
 
 def require_scope(scope: str) -> Callable[..., object]:
