@@ -126,7 +126,7 @@ def test_concentration_conversions(values, unit):
 
 @FAST
 @given(t=st.one_of(TEMPERATURE, SMALL_ARRAYS), ph=st.one_of(PH, SMALL_ARRAYS))
-def test_temperature_and_pH_helpers(t, ph):
+def test_temperature_and_pH_functions(t, ph):
     _finite_or_kinetics_error(units.celsius_to_kelvin, t)
     _finite_or_kinetics_error(units.kelvin_to_celsius, t)
     _finite_or_kinetics_error(units.validate_temperature_K, t)
