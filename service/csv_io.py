@@ -53,7 +53,7 @@ import json
 import math
 import re
 from collections.abc import Callable, Iterable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 from typing import IO, Any
 
@@ -268,8 +268,9 @@ def _read_header(header: list[str], problems: list[CsvProblem]) -> _Columns:
         if required not in cols.index:
             problems.append(CsvProblem(1, required, f"required column {required!r} is missing"))
     if cols.temp_col is None:
-        problems.append(CsvProblem(1, "temperature_C",
-                                   "a temperature column is required: temperature_C or temperature_K"))
+        problems.append(CsvProblem(
+            1, "temperature_C",
+            "a temperature column is required: temperature_C or temperature_K"))
     has_series = cols.time_col is not None or cols.conc_col is not None
     has_rate = cols.rate_col is not None or cols.dt50_col is not None
     if not has_series and not has_rate:
@@ -372,7 +373,8 @@ def _parse_row(row: _Row) -> dict[str, Any] | None:
     temp = row.number(cols.temp_col, required=True, what="temperature")
     if temp is not None:
         try:
-            kelvin = temp if cols.temp_col == "temperature_K" else float(units.celsius_to_kelvin(temp))
+            kelvin = (temp if cols.temp_col == "temperature_K"
+                      else float(units.celsius_to_kelvin(temp)))
             rec["temperature_K"] = float(units.validate_temperature_K(kelvin))
         except InputError as exc:
             unit = "K" if cols.temp_col == "temperature_K" else "°C"

@@ -838,15 +838,19 @@ body { margin:0; background:#efece4; color:var(--ink);
 main { max-width: 1060px; margin: 0 auto; background: var(--paper); padding: 28px 40px 40px;
   box-shadow: 0 0 0 1px #e2ddd0; }
 h1 { font-size: 26px; margin: 0 0 4px; letter-spacing: .2px; }
-h2 { font-size: 19px; margin: 34px 0 10px; padding-bottom: 4px; border-bottom: 2px solid var(--ink); }
+h2 { font-size: 19px; margin: 34px 0 10px; padding-bottom: 4px;
+  border-bottom: 2px solid var(--ink); }
 h3 { font-size: 15.5px; margin: 18px 0 6px; }
 .subtitle { color: var(--muted); margin: 0 0 14px; }
 .meta { display:grid; grid-template-columns: max-content 1fr; gap: 2px 14px; font-size: 13.5px;
   padding: 10px 14px; border: 1px solid var(--rule); background:#fff; }
-.meta dt { color: var(--muted); } .meta dd { margin:0; font-family: ui-monospace, Menlo, Consolas, monospace; }
-.caution { border-left: 6px solid var(--accent); background: #f7efe6; padding: 10px 14px; margin: 16px 0;
+.meta dt { color: var(--muted); }
+.meta dd { margin:0; font-family: ui-monospace, Menlo, Consolas, monospace; }
+.caution { border-left: 6px solid var(--accent); background: #f7efe6; padding: 10px 14px;
+  margin: 16px 0;
   font-size: 14px; }
-.caution strong { color: var(--accent); letter-spacing: .4px; text-transform: uppercase; font-size: 12.5px;
+.caution strong { color: var(--accent); letter-spacing: .4px; text-transform: uppercase;
+  font-size: 12.5px;
   display:block; margin-bottom: 2px; }
 .problem { border: 1px dashed #a33; background:#fff5f3; padding: 8px 12px; margin: 10px 0; }
 table { border-collapse: collapse; width: 100%; font-size: 13.5px; margin: 6px 0 12px;
@@ -857,19 +861,24 @@ td { border-bottom: 1px solid var(--rule); padding: 3px 6px; vertical-align: top
 td.num, th.num { text-align: right; white-space: nowrap; }
 td.nowrap { white-space: nowrap; }
 tr.flagged td { background: #fbf3df; }
-.flag { display:inline-block; white-space: normal; border:1px solid #8a6d1f; border-radius: 2px; padding: 0 4px; margin: 1px 2px 1px 0;
+.flag { display:inline-block; white-space: normal; border:1px solid #8a6d1f; border-radius: 2px;
+  padding: 0 4px; margin: 1px 2px 1px 0;
   font-size: 11.5px; color:#5d4a12; background:#fff8e1; }
 figure { margin: 10px 0 18px; break-inside: avoid; }
 figcaption { font-size: 13px; color: var(--muted); max-width: 900px; }
-.arrhenius-grid { display:grid; grid-template-columns: repeat(auto-fill, minmax(480px, 1fr)); gap: 0 16px; }
+.arrhenius-grid { display:grid; grid-template-columns: repeat(auto-fill, minmax(480px, 1fr));
+  gap: 0 16px; }
 .arrhenius-grid figcaption { max-width: 470px; }
 .runs-grid { display:grid; grid-template-columns: 1fr; gap: 6px; }
-.run-card { border: 1px solid var(--rule); background:#fff; padding: 8px 10px; break-inside: avoid; }
+.run-card { border: 1px solid var(--rule); background:#fff; padding: 8px 10px;
+  break-inside: avoid; }
 .run-card .pair { display:flex; flex-wrap: wrap; gap: 4px; }
 .run-card h3 { margin: 2px 0 4px; }
 .small { font-size: 12.5px; color: var(--muted); }
-footer { margin-top: 30px; font-size: 12.5px; color: var(--muted); border-top: 1px solid var(--rule); padding-top: 8px; }
-code { font-family: ui-monospace, Menlo, Consolas, monospace; font-size: 12.5px; background:#f3f0e8; padding: 0 3px; }
+footer { margin-top: 30px; font-size: 12.5px; color: var(--muted);
+  border-top: 1px solid var(--rule); padding-top: 8px; }
+code { font-family: ui-monospace, Menlo, Consolas, monospace; font-size: 12.5px;
+  background:#f3f0e8; padding: 0 3px; }
 @media print { body { background: #fff; } main { box-shadow:none; padding: 0; max-width: none; }
   h2 { break-after: avoid; } }
 """
@@ -963,7 +972,8 @@ def _summary_section(data: ReportData) -> str:
         for number, st in enumerate(data.studies, start=1):
             dates = " – ".join(str(d) for d in (st.get("start_date"), st.get("end_date")) if d)
             out.append(
-                f"<tr><td>S{number}</td><td>{_esc(st.get('laboratory'))}</td><td>{_esc(st.get('test_guideline') or '–')}"
+                f"<tr><td>S{number}</td><td>{_esc(st.get('laboratory'))}</td>"
+                f"<td>{_esc(st.get('test_guideline') or '–')}"
                 f"</td><td>{'yes' if st.get('glp') else 'no'}</td>"
                 f"<td>{_esc(st.get('reference') or '–')}</td><td>{_esc(dates or '–')}</td>"
                 f"<td class=num>{_esc(st.get('n_runs', ''))}</td></tr>")
@@ -1006,12 +1016,13 @@ def _summary_section(data: ReportData) -> str:
                       f"{_days(math.log(2) / (r.k_per_s * math.exp(-z * r.se_ln_k)))}")
             else:
                 ci = "–"
+        ionic = format_number(r.ionic_strength_M, 2) if r.ionic_strength_M else "–"
         out.append(
             f"<tr><td>{_esc(r.label)}</td>"
             + (f"<td>{_esc(study_no.get(r.study, r.study))}</td>" if several else "") +
             f"<td class=num>{_c(r.temperature_K)}"
             f"</td><td class=num>{format_number(r.pH, 3)}</td><td>{_esc(r.buffer or '–')}</td>"
-            f"<td class=num>{format_number(r.ionic_strength_M, 2) if r.ionic_strength_M else '–'}</td>"
+            f"<td class=num>{ionic}</td>"
             f"<td class=nowrap>{what}</td><td>{model}</td><td class=num>{_per_day(r.k_per_s)}</td>"
             f"<td class=num>{dt50}</td><td class=num>{ci}</td><td class=num>{chi}</td></tr>")
     out.append("</tbody></table>")
@@ -1375,13 +1386,17 @@ def _run_card(r: RunView, level: float) -> str:
                        y_axis=svg.Axis(f"residual [{c_unit}]", zero_line=True), title="Residuals",
                        width=420, height=270, legend=False, plot_id=f"run-res-{r.run_uid}")
     iv = fit.interval(level)
+    loq_note = ""
+    if fit.n_below_loq_set:
+        loq_note += f"; {fit.n_below_loq_set} below LOQ used at LOQ/2"
+    if fit.n_below_loq_dropped:
+        loq_note += f"; {fit.n_below_loq_dropped} below LOQ dropped"
     info = (f'<p class="small">{_esc(r.study)}; model {fit.model} ({_esc(fit.method)}, '
             f"{_esc(fit.error_model)} error); k = {_per_day(fit.k_per_s)} 1/d; DT50 = "
             f"{_days(fit.dt50_s)} d ({level * 100:g} % CI {_days(iv.dt50_low_s)} – "
             f"{_days(iv.dt50_high_s)} d); DT90 = {_days(fit.dt90_s)} d; χ² error level "
             f"{format_number(fit.chi2_error_level_percent, 2)} %; {fit.n_points} points"
-            f"{'; ' + str(fit.n_below_loq_set) + ' below LOQ used at LOQ/2' if fit.n_below_loq_set else ''}"
-            f"{'; ' + str(fit.n_below_loq_dropped) + ' below LOQ dropped' if fit.n_below_loq_dropped else ''}"
+            f"{loq_note}"
             ".</p>")
     return (f'<div class="run-card" data-run="{_esc(r.run_uid)}">{head}{info}'
             f'<div class="pair">{fit_svg}{res_svg}</div></div>')

@@ -19,7 +19,7 @@ from __future__ import annotations
 import html
 import math
 from collections.abc import Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 __all__ = [
     "Series",
@@ -226,7 +226,8 @@ def log_ticks(lo: float, hi: float) -> list[float]:
     return ticks
 
 
-_SUPERSCRIPT = str.maketrans("-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079")
+_SUPERSCRIPT = str.maketrans(
+    "-0123456789", "\u207b\u2070\u00b9\u00b2\u00b3\u2074\u2075\u2076\u2077\u2078\u2079")
 
 
 def _tick_label(value: float, log: bool, step: float) -> str:
@@ -557,7 +558,8 @@ def _top_axis(frame: _Frame, top_axis: tuple[str, Sequence[tuple[float, str]]]) 
     return "".join(parts)
 
 
-def _segments(frame: _Frame, x: Sequence[float], y: Sequence[float]) -> list[list[tuple[float, float]]]:
+def _segments(frame: _Frame, x: Sequence[float],
+              y: Sequence[float]) -> list[list[tuple[float, float]]]:
     segs: list[list[tuple[float, float]]] = []
     current: list[tuple[float, float]] = []
     for xv, yv in zip(x, y):
@@ -617,7 +619,8 @@ def _series_markup(frame: _Frame, s: Series) -> str:
 
 
 def _legend(x: float, y: float, w: float, series: Sequence[Series], bands: Sequence[Band]) -> str:
-    entries = [*[("band", b) for b in bands if b.label], *[("series", s) for s in series if s.label]]
+    entries = [*[("band", b) for b in bands if b.label],
+               *[("series", s) for s in series if s.label]]
     row = 17.0
     parts = ['<g class="legend">',
              f'<rect x="{_fmt(x)}" y="{_fmt(y)}" width="{_fmt(w)}" '
@@ -655,15 +658,15 @@ def _legend_key(kind: str, item: object, x: float, cy: float) -> str:
         return (f'<rect x="{_fmt(x + 8)}" y="{_fmt(cy - 5)}" width="24" height="10" '
                 f'fill="#8f9aa8" fill-opacity="0.28" stroke="#6c7683" stroke-width="0.6" '
                 f'stroke-dasharray="3 2"/>')
-    s = item  # a Series
-    ink, dash, shape, filled = _style(s.style)  # type: ignore[attr-defined]
+    s: Series = item  # type: ignore[assignment]
+    ink, dash, shape, filled = _style(s.style)
     parts = []
-    if s.kind in ("line", "line+points"):  # type: ignore[attr-defined]
+    if s.kind in ("line", "line+points"):
         dash_attr = f' stroke-dasharray="{dash}"' if dash else ""
         parts.append(
             f'<line x1="{_fmt(x + 6)}" x2="{_fmt(x + 34)}" y1="{_fmt(cy)}" y2="{_fmt(cy)}" '
-            f'stroke="{ink}" stroke-width="{_fmt(s.width)}"{dash_attr}/>')  # type: ignore[attr-defined]
-    if s.kind in ("points", "line+points"):  # type: ignore[attr-defined]
+            f'stroke="{ink}" stroke-width="{_fmt(s.width)}"{dash_attr}/>')
+    if s.kind in ("points", "line+points"):
         parts.append(f'<path d="{_marker_path(shape, x + 20, cy, 3.6)}" '
                      f'{_marker_attrs(ink, shape, filled)}/>')
     return "".join(parts)

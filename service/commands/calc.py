@@ -8,7 +8,6 @@ from __future__ import annotations
 import argparse
 import json
 import math
-import sys
 from typing import Any
 
 from service.commands.clitools import CommandError, format_table, guarded
