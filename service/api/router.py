@@ -6,6 +6,7 @@ from fastapi import APIRouter
 
 from service.api.routes import audit, keys, runs, studies, substances
 from service.api.routes import calculate, models, predictions
+from service.api.routes import exchange, reports
 from service.api.routes import scenarios
 from service.api.routes import design
 from service.errors import ERROR_RESPONSES
@@ -20,6 +21,8 @@ ROUTERS: list[APIRouter] = [
     models.router,
     predictions.router,
     calculate.router,
+    reports.router,
+    exchange.router,
     scenarios.router,
     design.router,
 ]
