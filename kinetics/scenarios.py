@@ -622,6 +622,12 @@ class ScenarioResult:
     notes : tuple of str
         Plain-language remarks (e.g. why a DT90 is missing).
     n_draws, seed : int, int or None
+    draw_distribution : str
+        How parameters were drawn: a multivariate t with the fit's residual degrees
+        of freedom when the model has ``dof`` and ``estimates`` (normal draws from
+        ``sample_parameters`` scaled by a shared :math:`\\sqrt{\\nu/\\chi^2_\\nu}`,
+        which also scales the prediction-band deviation), else normal; "none"
+        without draws.
     integration_points : int
     integration_rel_error : float
         Richardson estimate of the largest error of the cumulative ∫k dt (see rtol
@@ -659,6 +665,7 @@ class ScenarioResult:
     notes: tuple[str, ...]
     n_draws: int
     seed: int | None
+    draw_distribution: str
     integration_points: int
     integration_rel_error: float
     integration_rule: str = INTEGRATION_RULE
@@ -1123,6 +1130,7 @@ def run_scenario(
     eff_k = float(cum[i_h] / horizon)
 
     draws_store: dict[str, dict[str, np.ndarray]] = {}
+    distribution = "none"
     if n_draws:
         rng = np.random.default_rng(seed)
         params = np.asarray(model.sample_parameters(n_draws, rng), dtype=float)
@@ -1131,9 +1139,24 @@ def run_scenario(
                 f"sample_parameters({n_draws}) returned shape {params.shape}, expected "
                 f"({n_draws}, n_parameters)"
             )
+        # multivariate t with the fit's residual degrees of freedom when the model has
+        # them (normal draws scaled by one shared sqrt(dof/chi2_dof) per draw, as the
+        # intervals of kinetics.prediction); otherwise the draws are used as they are
+        dof = getattr(model, "dof", None)
+        est = getattr(model, "estimates", None)
+        t_scale = np.ones(n_draws)
+        distribution = "normal"
+        if (isinstance(dof, (int, np.integer)) and not isinstance(dof, bool) and dof >= 1
+                and est is not None and np.shape(est) == (params.shape[1],)):
+            t_scale = np.sqrt(int(dof) / rng.chisquare(int(dof), size=n_draws))
+            est_row = np.asarray(est, dtype=float)[None, :]
+            params = est_row + (params - est_row) * t_scale[:, None]
+            distribution = f"multivariate t, {int(dof)} degrees of freedom"
         sigma = getattr(model, "residual_scale", None)
         sigma = float(sigma) if sigma is not None and float(sigma) > 0 else None
-        offsets = rng.standard_normal(n_draws) * sigma if sigma is not None else None
+        offsets = (
+            rng.standard_normal(n_draws) * sigma * t_scale if sigma is not None else None
+        )
         n_eval = ln_k.size
         chunk = max(1, _DRAW_CHUNK_ELEMENTS // n_eval)
         acc: dict[str, dict[str, list[np.ndarray]]] = {
@@ -1211,6 +1234,7 @@ def run_scenario(
         notes=tuple(notes),
         n_draws=n_draws,
         seed=seed,
+        draw_distribution=distribution,
         integration_points=int(grid.size),
         integration_rel_error=float(rel_err),
         _draws=draws_store,

@@ -432,3 +432,21 @@ def test_absurd_rate_constants_raise_instead_of_dividing_by_zero():
     sc = Scenario("dead", temperature_K=285.0, pH=7.0)
     with pytest.raises(DataError, match="far outside"):
         run_scenario(model, sc, n_draws=0)
+
+
+def test_real_surface_band_at_constant_conditions_matches_prediction_intervals(fitted_surface):
+    # at constant conditions C/C0 = exp(-k t), so the band of C/C0 is the band of k carried
+    # through exp(-k t); compare with the t-based delta-method intervals of kinetics.predict
+    from kinetics.prediction import predict
+
+    sc = Scenario("constant", temperature_K=288.15, pH=8.0)
+    times = np.array([0.0, 30.0, 100.0]) * DAY_S
+    res = run_scenario(fitted_surface, sc, output_time_s=times, n_draws=20000, seed=3)
+    assert res.draw_distribution.startswith("multivariate t")
+    p = predict(fitted_surface, 288.15, 8.0, level=0.95)
+    k = {name: float(np.ravel(getattr(p, name))[0]) for name in
+         ("k_ci_low_per_s", "k_ci_high_per_s", "k_pi_low_per_s", "k_pi_high_per_s")}
+    assert_allclose(res.fraction_ci_low, np.exp(-k["k_ci_high_per_s"] * times), rtol=5e-3)
+    assert_allclose(res.fraction_ci_high, np.exp(-k["k_ci_low_per_s"] * times), rtol=5e-3)
+    assert_allclose(res.fraction_pi_low, np.exp(-k["k_pi_high_per_s"] * times), rtol=5e-3)
+    assert_allclose(res.fraction_pi_high, np.exp(-k["k_pi_low_per_s"] * times), rtol=5e-3)

@@ -365,6 +365,7 @@ def _scenario_payload(scenario: Scenario, res: ScenarioResult, report_times_d: l
         "level": res.level,
         "n_draws": res.n_draws,
         "seed": res.seed,
+        "draw_distribution": res.draw_distribution,
         "summary": summary,
         "dt50_s": res.dt50_s,
         "dt50_d": _opt_d(res.dt50_s),
