@@ -1723,6 +1723,12 @@ def fit_surface(
             too_few = design.n - candidates[0].n_params < 1 and len(fixed) <= n_ph
             err = DataError if too_few else IdentifiabilityError
             raise err(f"cannot fit the {'+'.join(fixed)} model: {reason}")
+        if all(design.n - c.n_params < 1 for c in candidates if "pH level" not in c.reason):
+            smallest = min(c.n_params for c in candidates)
+            raise DataError(
+                f"{design.n} runs are too few for any rate surface: even the simplest model "
+                f"has {smallest} parameters and at least {smallest + 1} runs are needed"
+            )
         details = "; ".join(f"{'+'.join(c.pathways)}: {c.reason}" for c in candidates)
         raise IdentifiabilityError(
             f"no pathway model can be characterised by these {design.n} runs ({details})"

@@ -388,6 +388,8 @@ def test_bad_fit_requests_raise_clear_errors():
         fit_surface(mixed)
     with pytest.raises(DataError, match="at least 2 runs"):
         fit_surface(runs[:1])
+    with pytest.raises(DataError, match="too few for any rate surface"):
+        fit_surface([runs[1], runs[4]])  # pH 7 at two temperatures: Ea and k, no scatter left
     few = runs[:5]  # three pH levels, five runs, six parameters
     with pytest.raises(DataError, match="runs are needed"):
         fit_surface(few, pathways=PATHWAYS)
