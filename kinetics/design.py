@@ -1501,10 +1501,15 @@ def _compositions(n: int, k: int) -> np.ndarray:
 
 
 def _exchange(problem: _Problem, k: int, n: int, rng: np.random.Generator, n_starts: int):
-    """Greedy start plus one-vessel exchanges until no move improves the criterion."""
-    starts = []
-    # greedy: add vessels one at a time, each to the cell that helps most (a tiny ridge
-    # lets the first vessels be compared before the design identifies every parameter)
+    """Greedy start, one-vessel exchanges, then perturbed restarts from the best design.
+
+    The greedy start adds vessels one at a time, each to the cell that helps most (a tiny
+    ridge lets the first vessels be compared before the design identifies every
+    parameter). The exchange step evaluates every move of one vessel from a used cell to
+    any other cell and takes the best, until none improves the criterion. Each further
+    start re-places a random third of the best design's vessels at random and exchanges
+    again (an iterated local search).
+    """
     alloc = np.zeros(k)
     for _ in range(n):
         cand = alloc[None, :] + np.eye(k)
@@ -1514,32 +1519,35 @@ def _exchange(problem: _Problem, k: int, n: int, rng: np.random.Generator, n_sta
             sc = problem.score(cand)
             problem.ridge = 0.0
         alloc = cand[int(np.argmin(sc))]
-    starts.append(alloc)
-    for _ in range(n_starts - 1):
-        starts.append(rng.multinomial(n, np.full(k, 1.0 / k)).astype(float))
-    best, best_score = None, np.inf
-    for alloc in starts:
+
+    def descend(alloc: np.ndarray) -> tuple[np.ndarray, float]:
         current = float(problem.score(alloc)[0])
+        eye = np.eye(k)
         while True:
-            moves = []
-            for a in np.nonzero(alloc > 0)[0]:
-                for b in range(k):
-                    if b != a:
-                        mv = alloc.copy()
-                        mv[a] -= 1
-                        mv[b] += 1
-                        moves.append(mv)
-            if not moves:
-                break
-            moves_arr = np.array(moves)
-            sc = problem.score(moves_arr)
+            used = np.nonzero(alloc > 0)[0]
+            moves = (alloc[None, None, :] - eye[used][:, None, :] + eye[None, :, :]).reshape(-1, k)
+            moves = moves[~np.eye(k, dtype=bool)[used].reshape(-1)]  # not from a cell to itself
+            if moves.size == 0:
+                return alloc, current
+            sc = problem.score(moves)
             i = int(np.argmin(sc))
-            if sc[i] < current * (1.0 - 1e-9) or (not np.isfinite(current) and np.isfinite(sc[i])):
-                alloc, current = moves_arr[i], float(sc[i])
+            improves = sc[i] < current * (1.0 - 1e-9)
+            if improves or (not np.isfinite(current) and np.isfinite(sc[i])):
+                alloc, current = moves[i], float(sc[i])
             else:
-                break
-        if current < best_score or best is None:
-            best, best_score = alloc, current
+                return alloc, current
+
+    best, best_score = descend(alloc)
+    for _ in range(n_starts - 1):
+        trial = best.copy()
+        n_move = max(1, n // 3)
+        for _ in range(n_move):
+            src = rng.choice(np.nonzero(trial > 0)[0])
+            trial[src] -= 1
+            trial[rng.integers(k)] += 1
+        trial, score = descend(trial)
+        if score < best_score:
+            best, best_score = trial, score
     return best, best_score
 
 
@@ -1556,7 +1564,9 @@ def _vessels_needed(
 
     def ok(m: int) -> bool:
         if m not in cache:
-            cache[m] = _policy_search(problem, k, m, max_exhaustive, rng, ea_prior_allowed)[1]
+            cache[m] = _policy_search(
+                problem, k, m, max_exhaustive, rng, ea_prior_allowed, n_starts=1
+            )[1]
         return cache[m] <= var_target
 
     lo, hi = 2, 4 * n
@@ -1573,23 +1583,24 @@ def _vessels_needed(
 
 def _policy_search(
     problem: _Problem, k: int, n: int, max_exhaustive: int, rng: np.random.Generator,
-    ea_prior_allowed: str,
+    ea_prior_allowed: str, n_starts: int = 4,
 ) -> tuple[np.ndarray, float, str, bool]:
     """Search under the Ea-prior policy; the flag says whether the prior had to be used."""
     if ea_prior_allowed == "always":
         problem.ea_from_data_only = False
-        return (*_search(problem, k, n, max_exhaustive, rng), False)
+        return (*_search(problem, k, n, max_exhaustive, rng, n_starts), False)
     problem.ea_from_data_only = True
-    alloc, score, method = _search(problem, k, n, max_exhaustive, rng)
+    alloc, score, method = _search(problem, k, n, max_exhaustive, rng, n_starts)
     if math.isfinite(score) or ea_prior_allowed == "never":
         return alloc, score, method, False
     problem.ea_from_data_only = False
-    alloc, score, method = _search(problem, k, n, max_exhaustive, rng)
+    alloc, score, method = _search(problem, k, n, max_exhaustive, rng, n_starts)
     return alloc, score, method, True
 
 
 def _search(
-    problem: _Problem, k: int, n: int, max_exhaustive: int, rng: np.random.Generator
+    problem: _Problem, k: int, n: int, max_exhaustive: int, rng: np.random.Generator,
+    n_starts: int = 4,
 ) -> tuple[np.ndarray, float, str]:
     total = math.comb(n + k - 1, k - 1)
     if total <= max_exhaustive:
@@ -1601,10 +1612,10 @@ def _search(
             f"{k} candidate temperature × pH cell(s)"
         )
         return allocs[i].astype(float), float(sc[i]), method
-    alloc, score = _exchange(problem, k, n, rng, n_starts=4)
+    alloc, score = _exchange(problem, k, n, rng, n_starts=n_starts)
     method = (
         f"greedy allocation followed by one-vessel exchanges (Fedorov-type exchange "
-        f"algorithm) from 4 starts, because the {total} possible allocations of {n} "
+        f"algorithm) and {n_starts - 1} perturbed restarts, because the {total} possible allocations of {n} "
         f"vessel(s) to {k} cell(s) exceed the exhaustive limit of {max_exhaustive}; the "
         "result is a local optimum, not guaranteed to be the global one"
     )

@@ -117,9 +117,11 @@ class FieldConditionIn(Strict):
 class LabIn(Strict):
     """What the laboratory can do (give allowed_temperatures_K or allowed_temperatures_C)."""
 
-    allowed_temperatures_K: Optional[list[float]] = Field(default=None, min_length=1, max_length=12)
-    allowed_temperatures_C: Optional[list[float]] = Field(default=None, min_length=1, max_length=12)
-    allowed_pH: list[float] = Field(min_length=1, max_length=10)
+    allowed_temperatures_K: Optional[list[float]] = Field(default=None, min_length=1,
+                                                          max_length=10)
+    allowed_temperatures_C: Optional[list[float]] = Field(default=None, min_length=1,
+                                                          max_length=10)
+    allowed_pH: list[float] = Field(min_length=1, max_length=8)
     max_duration: float = Field(gt=0, description="longest incubation, in time_unit")
     min_sampling_interval: float = Field(
         default=10.0 / 1440.0, ge=0, description="shortest time between samples, in time_unit"
