@@ -95,10 +95,13 @@ def _lost(fraction_lost: float) -> float:
 def _loglinear_rate(t: np.ndarray, y: np.ndarray) -> float | None:
     """Slope-based first-order rate from positive values, or None if not declining."""
     keep = y > 0
-    if np.unique(t[keep]).size < 2:
+    tk = t[keep]
+    if np.unique(tk).size < 2:
         return None
-    slope = np.polyfit(t[keep], np.log(y[keep]), 1)[0]
-    return float(-slope) if slope < 0 else None
+    xm = tk - tk.mean()
+    with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
+        slope = float(np.dot(xm, np.log(y[keep])) / np.dot(xm, xm))
+    return -slope if np.isfinite(slope) and slope < 0 else None
 
 
 # ----------------------------------------------------------------------- SFO
@@ -149,8 +152,10 @@ def _fomc_dtx(theta, x):
 def _fomc_dtx_log_gradient(theta, x):
     alpha = np.exp(theta[1])
     a = _lost(x) / alpha
-    # d ln(expm1(L/alpha)) / d ln(alpha) = -(L/alpha) exp(L/alpha) / expm1(L/alpha)
-    return np.array([0.0, -a * np.exp(a) / np.expm1(a), 1.0])
+    # d ln(expm1(a)) / d ln(alpha) = -a exp(a) / expm1(a) = -a / (1 - exp(-a)),
+    # which tends to -1 as a -> 0 (alpha -> infinity, the SFO limit)
+    ratio = 1.0 if a < 1e-12 else a / -np.expm1(-a)
+    return np.array([0.0, -ratio, 1.0])
 
 
 def _fomc_starts(t, y, sfo):

@@ -66,6 +66,7 @@ _WEIGHT_FLOOR = 1e-9  # relative floor on fitted values used as proportional wei
 _IRLS_MAX = 100
 _IRLS_TOL = 1e-13
 _COND_LIMIT = 1e10  # condition number of the column-scaled Jacobian
+_MAX_LOG_SE = 20.0  # largest accepted standard error of a log- or logit-scale parameter
 
 
 # ------------------------------------------------------------------ results
@@ -274,6 +275,13 @@ class SeriesFit:
             dt90_hi = float(self.dt90_s * np.exp(q * self.se_ln_dt90))
             dt50_lo = float(self.dt50_s * np.exp(-q * self.se_ln_k))
             dt50_hi = float(self.dt50_s * np.exp(q * self.se_ln_k))
+        bounds = [*zip(self.parameter_names, low, high), ("k_per_s", k_lo, k_hi),
+                  ("dt50_s", dt50_lo, dt50_hi), ("dt90_s", dt90_lo, dt90_hi)]
+        for name, lo, hi in bounds:
+            if not (math.isfinite(lo) and math.isfinite(hi)):
+                raise IdentifiabilityError(
+                    f"the {lvl:g} confidence interval of {name} is unbounded "
+                    f"({_fmt(lo)} to {_fmt(hi)}); the data do not constrain it at this level")
         return SeriesInterval(
             level=lvl,
             parameter_names=self.parameter_names,
@@ -477,7 +485,11 @@ def _prepare(time: Any, concentration: Any, time_unit: str, n_parameters: int,
         raise DataError("concentrations are above 0 at only one sampling time "
                         f"({_fmt(tp[0])} {time_unit}); the decline is too fast for "
                         "the sampling times and no rate can be estimated")
-    slope = _ols_slope(tp, np.log(c[pos]))
+    with np.errstate(over="ignore", invalid="ignore", divide="ignore"):
+        slope = _ols_slope(tp, np.log(c[pos]))
+    if not math.isfinite(slope):
+        raise DataError("the sampling times are too close together to estimate a decline "
+                        f"({', '.join(_fmt(x) for x in ut)} {time_unit})")
     if slope >= 0:
         m0 = float(c[group == 0].mean())
         m1 = float(c[group == ut.size - 1].mean())
@@ -551,7 +563,12 @@ def _gauss_newton_polish(model, theta, t, y, w, steps=3):
     for _ in range(steps):
         jac = model.jacobian(theta, t) * sw[:, None]
         r = (y - model.predict(theta, t)) * sw
-        step, *_ = np.linalg.lstsq(jac, r, rcond=None)
+        if not (np.all(np.isfinite(jac)) and np.all(np.isfinite(r))):
+            break
+        try:
+            step, *_ = np.linalg.lstsq(jac, r, rcond=None)
+        except np.linalg.LinAlgError:
+            break
         cand = theta + step
         f = model.predict(cand, t)
         if not np.all(np.isfinite(f)):
@@ -1011,6 +1028,16 @@ def _build_fit(spec, theta, prep: _Prepared, error_model: str) -> SeriesFit:
         g90 = spec.dtx_log_gradient(theta, 0.9)
     se_ln_k = math.sqrt(max(float(g50 @ eng.theta_covariance @ g50), 0.0))
     se_ln_dt90 = math.sqrt(max(float(g90 @ eng.theta_covariance @ g90), 0.0))
+    se_theta = np.sqrt(np.maximum(np.diag(eng.theta_covariance), 0.0))
+    checks = [(f"ln {n}" if kind != "logit" else f"logit {n}", float(se))
+              for n, kind, se in zip(spec.parameter_names, spec.kinds, se_theta)
+              if kind != "amplitude"] + [("ln dt50_s", se_ln_k), ("ln dt90_s", se_ln_dt90)]
+    for label, se in checks:
+        if not se <= _MAX_LOG_SE:
+            raise IdentifiabilityError(
+                f"{spec.name}: the data do not constrain the parameters (standard error of "
+                f"{label} = {_fmt(se)}, i.e. uncertain by a factor of more than "
+                f"e^{_MAX_LOG_SE:g}); try a model with fewer parameters or more sampling times")
     k = float(math.exp(theta[1])) if spec.name == "SFO" else _LN2 / dt50
     return _assemble(spec.name, "nls", error_model, spec.parameter_names, eng, prep, k, se_ln_k,
                      se_ln_dt90, dt50, dt90, spec.rate_parameters, spec.kinds)
@@ -1269,6 +1296,13 @@ def _batch_results(preps, theta, t_s, y, mask, sizes, error_model):
     aic = 6.0 - 2.0 * log_l
     with np.errstate(divide="ignore"):
         p_pos = np.where(se1 > 0, stats.t.sf(k / np.where(se1 > 0, se1, 1.0), dof), 0.0)
+    bad = ~(se_ln_k <= _MAX_LOG_SE)
+    if bad.any():
+        i = int(np.argmax(bad))
+        raise IdentifiabilityError(
+            f"series[{i}]: SFO: the data do not constrain the parameters (standard error of "
+            f"ln k_per_s = {_fmt(float(se_ln_k[i]))}, i.e. uncertain by a factor of more than "
+            f"e^{_MAX_LOG_SE:g}); try more sampling times")
     dt50 = _LN2 / k
     dt90 = _LN10 / k
     values = np.column_stack((dt50, dt90, k, se_ln_k, chi2_err, aic, rss, cov00, cov11))
