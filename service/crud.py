@@ -15,7 +15,7 @@ import uuid
 from collections.abc import Sequence
 from typing import Any, Optional
 
-from sqlalchemy import func, select
+from sqlalchemy import func, or_, select
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session, selectinload
 
@@ -54,6 +54,7 @@ __all__ = [
     "list_run_versions",
     "list_runs",
     "current_runs",
+    "runs_as_of",
     "data_version",
     "data_version_of",
     "get_cached_fit",
@@ -506,6 +507,26 @@ def current_runs(session: Session, *, substance_id: int) -> list[Run]:
     rows = session.scalars(
         select(Run)
         .where(Run.substance_id == substance_id, Run.status == "current")
+        .options(selectinload(Run.observations))
+        .order_by(Run.id)
+    ).all()
+    return list(rows)
+
+
+def runs_as_of(session: Session, *, substance_id: int, as_of: dt.datetime) -> list[Run]:
+    """The run versions of a substance that were current at ``as_of`` (UTC-aware), in id order.
+
+    A version was current at ``as_of`` if it was stored at or before it and was not yet
+    superseded or withdrawn (``valid_to`` empty or later). Rows are never deleted and
+    their measurements never change, so this is exactly the data a fit used then.
+    """
+    rows = session.scalars(
+        select(Run)
+        .where(
+            Run.substance_id == substance_id,
+            Run.created_at <= as_of,
+            or_(Run.valid_to.is_(None), Run.valid_to > as_of),
+        )
         .options(selectinload(Run.observations))
         .order_by(Run.id)
     ).all()

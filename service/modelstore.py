@@ -31,6 +31,7 @@ class StoredModel:
     data_version: str
     fitted_at: dt.datetime
     cached: bool
+    as_of: dt.datetime | None = None
 
     def meta(self) -> dict:
         return {
@@ -39,6 +40,7 @@ class StoredModel:
             "data_version": self.data_version,
             "fitted_at": self.fitted_at.isoformat().replace("+00:00", "Z"),
             "cached": self.cached,
+            "as_of": self.as_of.isoformat().replace("+00:00", "Z") if self.as_of else None,
         }
 
 
@@ -48,28 +50,56 @@ def _restore(fit_json: str, diagnostics_json: str) -> FitResult:
     )
 
 
-def load_model(factory: sessionmaker[Session], *, substance_id: int, options: FitOptions) -> StoredModel:
+def _check_as_of(as_of: dt.datetime) -> dt.datetime:
+    """``as_of`` in UTC; refuse a time without zone or one in the future."""
+    from kinetics.errors import InputError
+
+    if as_of.tzinfo is None or as_of.utcoffset() is None:
+        raise InputError(f"as_of {as_of.isoformat()} needs a time zone, e.g. ...Z for UTC")
+    as_of = as_of.astimezone(dt.timezone.utc)
+    now = dt.datetime.now(dt.timezone.utc)
+    if as_of > now:
+        raise InputError(
+            f"as_of {as_of.isoformat()} is in the future (now {now.isoformat()}); leave it "
+            "out for the current model"
+        )
+    return as_of
+
+
+def load_model(
+    factory: sessionmaker[Session], *, substance_id: int, options: FitOptions,
+    as_of: dt.datetime | None = None,
+) -> StoredModel:
     """The surface of ``substance_id`` fitted with ``options`` (cached when possible).
+
+    With ``as_of`` (a past, timezone-aware time) the fit uses the run versions that were
+    current then, so it is the model (and gives the predictions) a client got at that time.
 
     Raises
     ------
     service.errors.NotFound
         Unknown substance.
     kinetics.errors.KineticsError
-        The current runs cannot support the fit (mapped to 422).
+        The current runs cannot support the fit (mapped to 422); ``as_of`` without a time
+        zone or in the future (InputError).
     """
+    if as_of is not None:
+        as_of = _check_as_of(as_of)
     key = options_key(options.model_dump(mode="json"))
     with factory() as session:
         substance = crud.get_substance(session, substance_id=substance_id)
         name = substance.name
-        runs = crud.current_runs(session, substance_id=substance_id)
+        if as_of is None:
+            runs = crud.current_runs(session, substance_id=substance_id)
+        else:
+            runs = crud.runs_as_of(session, substance_id=substance_id, as_of=as_of)
         version = crud.data_version_of(substance_id=substance_id, run_version_ids=[r.id for r in runs])
         entry = crud.get_cached_fit(session, substance_id=substance_id, data_version=version, options_key=key)
         if entry is not None:
             return StoredModel(
                 result=_restore(entry.fit_json, entry.diagnostics_json),
                 substance_id=substance_id, substance_name=name, data_version=version,
-                fitted_at=entry.created_at, cached=True,
+                fitted_at=entry.created_at, cached=True, as_of=as_of,
             )
         inputs = [run_input_from_model(r) for r in runs]
         session.rollback()
@@ -84,4 +114,5 @@ def load_model(factory: sessionmaker[Session], *, substance_id: int, options: Fi
     return StoredModel(
         result=_restore(fit_json, diagnostics_json), substance_id=substance_id,
         substance_name=name, data_version=version, fitted_at=fitted_at, cached=False,
+        as_of=as_of,
     )

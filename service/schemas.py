@@ -627,6 +627,7 @@ class SurfaceModelPublic(Public):
     data_version: Optional[str] = Field(default=None, description="fingerprint of the run versions used")
     fitted_at: Optional[dt.datetime] = None
     cached: Optional[bool] = None
+    as_of: Optional[dt.datetime] = Field(default=None, description="the past time asked for (UTC), if any")
     fit_options: FitOptions
     temperature_model: str
     pathways_supported: list[str]
@@ -752,6 +753,7 @@ class PredictionResponse(Public):
     caution: str
     substance_id: Optional[int] = None
     data_version: Optional[str] = None
+    as_of: Optional[dt.datetime] = Field(default=None, description="the past time asked for (UTC), if any")
     fit_options: FitOptions
     level: float
     method: str

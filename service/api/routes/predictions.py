@@ -2,10 +2,11 @@
 
 from __future__ import annotations
 
-from typing import Annotated
+from typing import Annotated, Optional
 
-from fastapi import APIRouter, Depends, Request
+from fastapi import APIRouter, Depends, Query, Request
 from fastapi.responses import StreamingResponse
+from pydantic import AwareDatetime
 
 from service.api.examples import openapi_examples
 from service.conditions import condition_arrays
@@ -29,13 +30,20 @@ def predict_substance(
     request: Request,
     body: Annotated[PredictionRequest, openapi_examples("prediction_request", "prediction_columns_request")],
     _p: Annotated[Principal, Depends(require_scope("read"))],
+    as_of: Annotated[Optional[AwareDatetime], Query(
+        description="predict with the model as it was at this past time (ISO 8601 with a time "
+        "zone): the same numbers a client got then",
+    )] = None,
 ) -> StreamingResponse:
     """Give conditions as objects (``conditions``) or, for many, as columns (``columns``).
     Both intervals (confidence of the mean rate, prediction for a new run) are at ``level``.
     Every response carries the caution text."""
     settings = request.app.state.settings
     arrays = condition_arrays(body.conditions, body.columns, max_conditions=settings.max_conditions_per_request)
-    stored = load_model(request.app.state.session_factory, substance_id=substance_id, options=body.fit_options)
+    stored = load_model(
+        request.app.state.session_factory, substance_id=substance_id, options=body.fit_options,
+        as_of=as_of,
+    )
     pred = run_predictions(
         stored.result.surface, arrays, body, max_mc_evaluations=settings.max_montecarlo_evaluations
     )
@@ -43,4 +51,6 @@ def predict_substance(
         stored.result.surface, pred, opts=body, fit_options=body.fit_options,
         substance_id=substance_id, data_version=stored.data_version,
     )
+    if as_of is not None:
+        header["as_of"] = stored.meta()["as_of"]
     return StreamingResponse(prediction_chunks(header, pred, body.layout), media_type="application/json")
