@@ -404,7 +404,9 @@ def test_exhaustive_search_is_optimal_on_a_small_problem():
 
 def test_exchange_algorithm_finds_a_design_close_to_the_exhaustive_one():
     exhaustive = design.recommend_design(ESTER, ESTER_FIELD, ESTER_LAB,
-                                         target_width_ratio=ESTER_TARGET)
+                                         target_width_ratio=ESTER_TARGET,
+                                         max_exhaustive=1_000_000)
+    assert "exhaustive" in exhaustive.search_method
     exchange = design.recommend_design(ESTER, ESTER_FIELD, ESTER_LAB,
                                        target_width_ratio=ESTER_TARGET, max_exhaustive=1)
     assert "exchange" in exchange.search_method
