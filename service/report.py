@@ -754,22 +754,22 @@ def pathway_points(surface: Any, pathway: str, runs: Sequence[RunView],
     """
     from kinetics.water import hydronium_hydroxide_molar
 
+    usable = [r for r in runs if r.k_per_s and r.k_per_s > 0]
+    if not usable or pathway not in surface.pathways:
+        return []
+    T = np.array([r.temperature_K for r in usable])
+    pH = np.array([r.pH for r in usable])
+    ionic = np.array([r.ionic_strength_M for r in usable])
+    share = np.atleast_1d(np.asarray(
+        surface.contributions(T, pH, ionic_strength_M=ionic)[pathway], dtype=float))
+    h, oh = hydronium_hydroxide_molar(pH, T, ionic_strength_M=ionic)
+    divisor = {"acid": np.atleast_1d(h), "base": np.atleast_1d(oh)}.get(pathway,
+                                                                          np.ones(len(usable)))
     out: list[tuple[RunView, float]] = []
-    for run in runs:
-        if not run.k_per_s or run.k_per_s <= 0:
-            continue
-        share = surface.contributions(run.temperature_K, run.pH,
-                                      ionic_strength_M=run.ionic_strength_M)
-        f = float(np.asarray(share.get(pathway, 0.0)).ravel()[0])
+    for run, f, c in zip(usable, share, divisor):
         if f < min_share:
             continue
-        h, oh = hydronium_hydroxide_molar(run.pH, run.temperature_K,
-                                          ionic_strength_M=run.ionic_strength_M)
-        value = f * run.k_per_s
-        if pathway == "acid":
-            value /= float(h)
-        elif pathway == "base":
-            value /= float(oh)
+        value = f * run.k_per_s / c
         if value > 0 and math.isfinite(value):
             out.append((run, math.log(value)))
     return out
@@ -1352,11 +1352,19 @@ def _runs_section(data: ReportData) -> str:
     return "\n".join(out)
 
 
+def _times_in(time_s: Any, unit: str) -> list[float]:
+    """Times [s] converted to ``unit`` as a list (empty input gives an empty list)."""
+    t = np.asarray(time_s, dtype=float)
+    if t.size == 0:
+        return []
+    return np.atleast_1d(units.time_from_s(t, unit)).tolist()
+
+
 def _run_card(r: RunView, level: float) -> str:
     factor = r.concentration_factor
     t_unit = r.time_unit
     c_unit = r.concentration_unit or "stored unit"
-    t_disp = [float(units.time_from_s(t, t_unit)) for t in r.time_s]
+    t_disp = _times_in(r.time_s, t_unit)
     c_disp = [c * factor for c in r.concentration]
     quant = [(t, c) for t, c, b in zip(t_disp, c_disp, r.below_loq or [False] * len(t_disp))
              if not b]
@@ -1374,12 +1382,12 @@ def _run_card(r: RunView, level: float) -> str:
     t_max = max(r.time_s) if r.time_s else 1.0
     t_s = np.linspace(0.0, t_max, 120)
     curve = np.asarray(fit.fitted_at(t_s), dtype=float) * factor
-    fit_series_.append(svg.Series(f"{fit.model} fit", [float(units.time_from_s(t, t_unit))
-                                                       for t in t_s], curve.tolist(), "line", 0))
+    fit_series_.append(svg.Series(f"{fit.model} fit", _times_in(t_s, t_unit), curve.tolist(),
+                                  "line", 0))
     fit_svg = svg.plot(fit_series_, x_axis=svg.Axis(f"time [{t_unit}]"),
                        y_axis=svg.Axis(f"concentration [{c_unit}]"), title="Fit",
                        width=500, height=270, plot_id=f"run-fit-{r.run_uid}")
-    res_t = [float(units.time_from_s(t, t_unit)) for t in fit.time_s]
+    res_t = _times_in(fit.time_s, t_unit)
     res = [float(v) * factor for v in fit.residuals]
     res_svg = svg.plot([svg.Series("residual", res_t, res, "points", 3)],
                        x_axis=svg.Axis(f"time [{t_unit}]"),
