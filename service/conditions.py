@@ -58,11 +58,11 @@ def condition_arrays(conditions: Any, columns: Any, *, max_conditions: int) -> C
         n = len(conditions)
         if n > max_conditions:
             raise TooLarge(f"{n} conditions were sent; at most {max_conditions} are accepted per request")
-        t_C = np.array([np.nan if c.temperature_C is None else c.temperature_C for c in conditions], dtype=float)
-        t_K = np.array([np.nan if c.temperature_K is None else c.temperature_K for c in conditions], dtype=float)
-        ph = np.array([c.pH for c in conditions], dtype=float)
-        ionic = np.array([np.nan if c.ionic_strength_M is None else c.ionic_strength_M for c in conditions], dtype=float)
-        sal = np.array([np.nan if c.salinity is None else c.salinity for c in conditions], dtype=float)
+        def col(name: str) -> np.ndarray:
+            return np.array([c.get(name) for c in conditions], dtype=float)  # None -> nan
+
+        t_C, t_K, ph = col("temperature_C"), col("temperature_K"), col("pH")
+        ionic, sal = col("ionic_strength_M"), col("salinity")
 
         def loc(field: str):
             return lambda i: ["body", "conditions", i, field]

@@ -89,11 +89,13 @@ def load_model(
     with factory() as session:
         substance = crud.get_substance(session, substance_id=substance_id)
         name = substance.name
+        runs = None
         if as_of is None:
-            runs = crud.current_runs(session, substance_id=substance_id)
+            # ids only: on a cache hit the observations are never loaded
+            version = crud.data_version(session, substance_id=substance_id)
         else:
             runs = crud.runs_as_of(session, substance_id=substance_id, as_of=as_of)
-        version = crud.data_version_of(substance_id=substance_id, run_version_ids=[r.id for r in runs])
+            version = crud.data_version_of(substance_id=substance_id, run_version_ids=[r.id for r in runs])
         entry = crud.get_cached_fit(session, substance_id=substance_id, data_version=version, options_key=key)
         if entry is not None:
             return StoredModel(
@@ -101,6 +103,10 @@ def load_model(
                 substance_id=substance_id, substance_name=name, data_version=version,
                 fitted_at=entry.created_at, cached=True, as_of=as_of,
             )
+        if runs is None:
+            runs = crud.current_runs(session, substance_id=substance_id)
+            # the version of exactly the runs fitted (a writer may have committed meanwhile)
+            version = crud.data_version_of(substance_id=substance_id, run_version_ids=[r.id for r in runs])
         inputs = [run_input_from_model(r) for r in runs]
         session.rollback()
     result = compute_fit(inputs, **options.kinetics_kwargs())

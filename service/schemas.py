@@ -11,7 +11,9 @@ from __future__ import annotations
 
 import datetime as dt
 import re
-from typing import Any, Generic, Literal, Optional, TypeVar
+from typing import Annotated, Any, Generic, Literal, Optional, TypeVar
+
+from typing_extensions import NotRequired, TypedDict
 
 import numpy as np
 from pydantic import (
@@ -652,14 +654,20 @@ class SurfaceModelPublic(Public):
 
 
 # --------------------------------------------------------------------------- predictions
-class Condition(Strict):
-    """One field condition."""
+class Condition(TypedDict):
+    """One field condition: one of temperature_C / temperature_K, pH, and optionally one of
+    ionic_strength_M (fresh water) / salinity (sea or brackish water).
 
-    temperature_C: Optional[float] = Field(default=None, description="water temperature [°C]")
-    temperature_K: Optional[float] = Field(default=None, description="water temperature [K]")
-    pH: float = Field(description="field pH (total scale when salinity is given)")
-    ionic_strength_M: Optional[float] = Field(default=None, ge=0, description="[mol/L], fresh water")
-    salinity: Optional[float] = Field(default=None, ge=0, description="practical salinity, sea or brackish water")
+    A typed dictionary rather than a model: 100,000 of them validate several times faster.
+    """
+
+    __pydantic_config__ = ConfigDict(allow_inf_nan=False, extra="forbid")  # type: ignore[misc]
+
+    temperature_C: NotRequired[Optional[Annotated[float, Field(description="water temperature [°C]")]]]
+    temperature_K: NotRequired[Optional[Annotated[float, Field(description="water temperature [K]")]]]
+    pH: Annotated[float, Field(description="field pH (total scale when salinity is given)")]
+    ionic_strength_M: NotRequired[Optional[Annotated[float, Field(ge=0, description="[mol/L], fresh water")]]]
+    salinity: NotRequired[Optional[Annotated[float, Field(ge=0, description="practical salinity")]]]
 
 
 class ConditionColumns(Strict):

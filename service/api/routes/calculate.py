@@ -11,6 +11,7 @@ from fastapi.responses import Response, StreamingResponse
 from kinetics.caution import CAUTION_TEXT
 from kinetics.surface import SurfaceFit
 from service.api.examples import openapi_examples
+from service.api.fastjson import FastJSONRoute
 from service.conditions import condition_arrays
 from service.deps import Principal, require_scope
 from service.errors import TooLarge
@@ -19,7 +20,7 @@ from service.jsonout import prediction_chunks
 from service.predicting import prediction_header, run_predictions
 from service.schemas import CalculationRequest, CalculationResponse
 
-router = APIRouter(prefix="/calculate", tags=["calculate"])
+router = APIRouter(prefix="/calculate", tags=["calculate"], route_class=FastJSONRoute)
 
 
 @router.post(

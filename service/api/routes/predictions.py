@@ -9,6 +9,7 @@ from fastapi.responses import StreamingResponse
 from pydantic import AwareDatetime
 
 from service.api.examples import openapi_examples
+from service.api.fastjson import FastJSONRoute
 from service.conditions import condition_arrays
 from service.deps import Principal, require_scope
 from service.jsonout import prediction_chunks
@@ -16,7 +17,7 @@ from service.modelstore import load_model
 from service.predicting import prediction_header, run_predictions
 from service.schemas import PredictionRequest, PredictionResponse
 
-router = APIRouter(prefix="/substances", tags=["predictions"])
+router = APIRouter(prefix="/substances", tags=["predictions"], route_class=FastJSONRoute)
 
 
 @router.post(
