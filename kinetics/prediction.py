@@ -330,7 +330,7 @@ def predict(
         jac[:, 0::2] = -w / (R * T)[:, None]
         jac[:, 1::2] = w / R
     cov = np.asarray(surface.covariance, dtype=float)
-    se2 = np.einsum("ij,jk,ik->i", jac, cov, jac, optimize=True)
+    se2 = _quadratic_rows(jac, cov)
     se = np.sqrt(np.clip(se2, 0.0, None))
     rs = float(surface.residual_scale)
     dof = int(surface.dof)
@@ -373,7 +373,9 @@ def predict(
     if outside.any():
         Tc = np.clip(T[outside], t_lo, t_hi)
         pc = np.clip(ph[outside], p_lo, p_hi)
-        lnc_c = _ln_concentrations(Tc, pc, ionic[outside], sal[outside])
+        lnc_c = _clipped_ln_concentrations(
+            T[outside], ph[outside], lnc[outside], Tc, pc, ionic[outside], sal[outside]
+        )
         terms_c, _ = surface._terms_at(Tc, lnc_c, None)
         extrap[outside] = np.abs(lnk[outside] - _logsumexp(terms_c, axis=1))
 
@@ -422,6 +424,62 @@ def predict(
         residual_scale=rs,
         caution=CAUTION_TEXT,
     )
+
+
+def _quadratic_rows(jac: np.ndarray, cov: np.ndarray) -> np.ndarray:
+    r"""Row-wise :math:`J_i \Sigma J_i^T` for many rows and a small covariance.
+
+    Loops over the (few) parameters, never over conditions; elementwise
+    arithmetic avoids a multithreaded BLAS call, which on a busy machine costs
+    more than the arithmetic itself.
+    """
+    p = cov.shape[0]
+    out = np.zeros(jac.shape[0])
+    for j in range(p):
+        col = jac[:, j]
+        acc = cov[j, j] * col
+        for k in range(j + 1, p):
+            acc = acc + (2.0 * cov[j, k]) * jac[:, k]
+        out += col * acc
+    return out
+
+
+def _clipped_ln_concentrations(
+    T: np.ndarray,
+    ph: np.ndarray,
+    lnc: np.ndarray,
+    Tc: np.ndarray,
+    pc: np.ndarray,
+    ionic: np.ndarray,
+    sal: np.ndarray,
+) -> np.ndarray:
+    """ln [H+], 0, ln [OH-] at conditions clipped into the measured box.
+
+    ln [H+] and ln [OH-] are linear in pH with slopes -ln 10 and +ln 10 at a
+    given temperature and medium (:func:`kinetics.water.hydronium_hydroxide_molar`),
+    so where only the pH was clipped the values at the field condition
+    (``lnc``) are shifted; where the temperature was clipped it sits on one of
+    the two range ends, and the water chemistry is evaluated there once per
+    medium when the medium is uniform.
+    """
+    out = lnc.copy()
+    shift = _LN10 * (pc - ph)
+    t_moved = Tc != T
+    if t_moved.any():
+        idx = np.flatnonzero(t_moved)
+        ti, si = ionic[idx], sal[idx]
+        if np.all(ti == ti[0]) and np.all(si == si[0]):
+            ends = np.unique(Tc[idx])
+            at7 = _ln_concentrations(ends, np.full(ends.size, 7.0), np.full(ends.size, ti[0]),
+                                     np.full(ends.size, si[0]))
+            out[idx] = at7[np.searchsorted(ends, Tc[idx])]
+            shift[idx] = _LN10 * (pc[idx] - 7.0)
+        else:
+            out[idx] = _ln_concentrations(Tc[idx], pc[idx], ti, si)
+            shift[idx] = 0.0
+    out[:, 0] -= shift
+    out[:, 2] += shift
+    return out
 
 
 def _monte_carlo(

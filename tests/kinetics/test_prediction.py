@@ -135,6 +135,10 @@ def test_flags_and_extrapolation_distance(surface):
     clipped = surface.ln_k(np.clip(T, 293.15, 333.15), np.clip(pH, 4.0, 9.0))
     assert_allclose(pred.extrapolation_ln_k, np.abs(pred.ln_k - clipped), rtol=1e-12)
     assert np.all(pred.extrapolation_ln_k[1:] > 0.0)
+    ionic = np.array([0.0, 0.05, 0.01, 0.1])  # a different medium per condition
+    mixed = predict(surface, T, pH, ionic_strength_M=ionic)
+    clipped = surface.ln_k(np.clip(T, 293.15, 333.15), np.clip(pH, 4.0, 9.0), ionic)
+    assert_allclose(mixed.extrapolation_ln_k, np.abs(mixed.ln_k - clipped), rtol=1e-12)
     assert list(pred.dominant_pathway) == ["neutral", "base", "base", "acid"]
     assert_allclose(sum(pred.contributions.values()), 1.0, rtol=1e-12)
     assert pred.caution == CAUTION_TEXT
