@@ -287,7 +287,10 @@ def predict(
     method : str
         ``"delta"`` or ``"montecarlo"`` (see module docstring).
     n_draws : int
-        Monte Carlo parameter draws (>= 100).
+        Monte Carlo parameter draws (>= 100). The work grows as
+        ``n_draws`` times the number of conditions (conditions are processed
+        in blocks so memory stays bounded); the delta method is the fast path
+        for large grids.
     seed : int or numpy.random.Generator, optional
         Seed of the Monte Carlo draws (same seed, same intervals).
 
