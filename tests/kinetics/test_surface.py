@@ -257,7 +257,7 @@ def test_pathway_at_one_temperature_gets_prior_only_for_that_pathway():
 def test_round_trip_gives_identical_predictions():
     rng = np.random.default_rng(2)
     fit = fit_surface(standard_runs(VELTRAZINE, rng, se=0.04, noise=0.04, se_dof=6))
-    text = json.dumps(fit.to_dict())
+    text = json.dumps(fit.to_dict(), allow_nan=False)  # strict JSON: no NaN or infinity
     back = SurfaceFit.from_dict(json.loads(text))
     T = np.linspace(275.0, 350.0, 50)
     pH = np.linspace(3.0, 11.0, 50)
