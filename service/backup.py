@@ -83,11 +83,14 @@ def sqlite_path(database_url: str) -> Path:
 
 def integrity_check(path: Path | str) -> str:
     """``PRAGMA integrity_check`` of a SQLite file: ``"ok"`` or the problems found."""
-    conn = sqlite3.connect(f"file:{Path(path)}?mode=ro", uri=True)
     try:
-        rows = conn.execute("PRAGMA integrity_check").fetchall()
-    finally:
-        conn.close()
+        conn = sqlite3.connect(f"file:{Path(path)}?mode=ro", uri=True)
+        try:
+            rows = conn.execute("PRAGMA integrity_check").fetchall()
+        finally:
+            conn.close()
+    except sqlite3.DatabaseError as exc:
+        return f"not a readable SQLite database ({exc})"
     return "; ".join(str(r[0]) for r in rows)
 
 

@@ -29,6 +29,18 @@ def _serve(args: argparse.Namespace) -> int:
             f"({'loaded' if summary['created'] else 'already present'})"
         )
     app = create_app(settings)
+    if args.demo:
+        from service.security import issue_key
+
+        key_id, secret = issue_key(
+            app.state.session_factory, label="demo key (fieldrate serve --demo)", scopes="admin",
+            actor="fieldrate serve --demo", pepper=settings.api_key_pepper,
+        )
+        print(f"demo API key (admin scope, shown only now): {secret}")
+        print(
+            "  send it as 'Authorization: Bearer <key>' (in /docs: Authorize); revoke it with "
+            f"'fieldrate keys revoke {key_id}'"
+        )
     shown_host = "127.0.0.1" if settings.host in ("0.0.0.0", "") else settings.host
     base = f"http://{shown_host}:{settings.port}"
     print(f"fieldrate serving {settings.database_url}")
