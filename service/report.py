@@ -614,7 +614,7 @@ def gather_from_csv(
         surface = result.surface
         model_of = {i: d.get("series_model") for i, d in enumerate(result.runs)}
     except KineticsError as exc:
-        error = str(exc)
+        error = csv_run_labels(str(exc), runs)
     views = []
     for i, r in enumerate(runs):
         v = run_view_from_csv(r, error_model=opts.error_model)
@@ -643,6 +643,13 @@ def gather_from_csv(
         level=float(level), fit_options={k: v for k, v in opts.model_dump().items()
                                          if v is not None},
     )
+
+
+def csv_run_labels(message: str, runs: Sequence[Any]) -> str:
+    """Replace the positional run names (``runs[3]``) of a fitting message by CSV lines."""
+    for i, r in enumerate(runs):
+        message = message.replace(f"runs[{i}]", f"line {r.first_line} (run {r.replicate_label!r})")
+    return message
 
 
 def _series_model(run: Any, choice: str) -> str:

@@ -75,14 +75,19 @@ def _load(args: argparse.Namespace):
 
 
 def _fit(args: argparse.Namespace):
+    from kinetics.errors import KineticsError
     from service.fitting import compute_fit, run_input_from_payload
+    from service.report import csv_run_labels
     from service.schemas import FitOptions
 
     runs, data = _load(args)
     opts = FitOptions(temperature_model=args.temperature_model, pathways=args.pathways,
                       series_model=args.series_model, error_model=args.error_model)
-    result = compute_fit([run_input_from_payload(d, i) for i, d in enumerate(data)],
-                         **opts.kinetics_kwargs())
+    try:
+        result = compute_fit([run_input_from_payload(d, i) for i, d in enumerate(data)],
+                             **opts.kinetics_kwargs())
+    except KineticsError as exc:
+        raise CommandError(f"{args.file}: {csv_run_labels(str(exc), runs)}") from None
     return runs, result, opts
 
 
