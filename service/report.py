@@ -872,6 +872,8 @@ tr.flagged td { background: #fbf3df; }
   padding: 0 4px; margin: 1px 2px 1px 0;
   font-size: 11.5px; color:#5d4a12; background:#fff8e1; }
 figure { margin: 10px 0 18px; break-inside: avoid; }
+svg.fr-plot { max-width: 100%; height: auto; }
+.meta code, footer code { overflow-wrap: anywhere; }
 figcaption { font-size: 13px; color: var(--muted); max-width: 900px; }
 .arrhenius-grid { display:grid; grid-template-columns: repeat(auto-fill, minmax(480px, 1fr));
   gap: 0 16px; }
