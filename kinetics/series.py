@@ -350,7 +350,7 @@ def _choice(value: Any, valid: tuple[str, ...], what: str) -> str:
 
 def _float_vector(values: Any, name: str) -> np.ndarray:
     try:
-        arr = np.asarray(values, dtype=float)
+        arr = np.array(values, dtype=float)  # a copy: results never alias caller arrays
     except (TypeError, ValueError):
         raise DataError(f"{name} must be a sequence of numbers, got {values!r}")
     if arr.ndim != 1:
@@ -1313,41 +1313,57 @@ def _batch_results(preps, theta, t_s, y, mask, sizes, error_model):
                                "the data do not support this model")
     names = MODELS["SFO"].parameter_names
     kinds = MODELS["SFO"].kinds
+    # read-only batch arrays; each fit gets row views (no per-series copies)
+    est_all = _frozen(np.column_stack((c0, k)))
+    se_all = _frozen(np.column_stack((se0, se1)))
+    cov_all = _frozen(np.stack((np.column_stack((cov00, cov01)),
+                                np.column_stack((cov01, cov11))), axis=1))
+    tcov_all = _frozen(np.stack((np.column_stack((tc00, tc01)),
+                                 np.column_stack((tc01, tc11))), axis=1))
+    theta_all = _frozen(theta)
+    fitted_all = _frozen(f)
+    resid_all = _frozen(y - f)
+    n_list = sizes.tolist()
+    k_list, se_list = k.tolist(), se_ln_k.tolist()
+    dt50_list, dt90_list = dt50.tolist(), dt90.tolist()
+    chi2_list, chi2_dof_list = chi2_err.tolist(), chi2_dof.tolist()
+    aic_list, rss_list, p_list = aic.tolist(), rss.tolist(), p_pos.tolist()
+    scale_list = np.sqrt(sigma2).tolist()
     fits = []
     for i, p in enumerate(preps):
-        n = int(sizes[i])
-        fi = f[i, :n]
-        aicc = aic[i] + 24.0 / (n - 4) if n - 4 > 0 else None
+        n = n_list[i]
+        p.t_s.setflags(write=False)
+        p.y.setflags(write=False)
         fits.append(SeriesFit(
             model="SFO",
             method="nls",
             error_model=error_model,
             parameter_names=names,
-            estimates=_frozen([c0[i], k[i]]),
-            covariance=_frozen([[cov00[i], cov01[i]], [cov01[i], cov11[i]]]),
-            standard_errors=_frozen([se0[i], se1[i]]),
-            dof=int(dof[i]),
-            time_s=_frozen(p.t_s),
-            concentration=_frozen(p.y),
-            fitted=_frozen(fi),
-            residuals=_frozen(p.y - fi),
-            k_per_s=float(k[i]),
-            se_ln_k=float(se_ln_k[i]),
-            se_ln_dt90=float(se_ln_k[i]),
-            dt50_s=float(dt50[i]),
-            dt90_s=float(dt90[i]),
-            chi2_error_level_percent=float(chi2_err[i]),
-            chi2_dof=int(chi2_dof[i]),
-            aic=float(aic[i]),
-            aicc=None if aicc is None else float(aicc),
-            rss=float(rss[i]),
-            residual_scale=math.sqrt(float(sigma2[i])),
+            estimates=est_all[i],
+            covariance=cov_all[i],
+            standard_errors=se_all[i],
+            dof=n - 2,
+            time_s=p.t_s,
+            concentration=p.y,
+            fitted=fitted_all[i, :n],
+            residuals=resid_all[i, :n],
+            k_per_s=k_list[i],
+            se_ln_k=se_list[i],
+            se_ln_dt90=se_list[i],
+            dt50_s=dt50_list[i],
+            dt90_s=dt90_list[i],
+            chi2_error_level_percent=chi2_list[i],
+            chi2_dof=chi2_dof_list[i],
+            aic=aic_list[i],
+            aicc=aic_list[i] + 24.0 / (n - 4) if n > 4 else None,
+            rss=rss_list[i],
+            residual_scale=scale_list[i],
             n_points=n,
-            p_rate_positive={"k_per_s": float(p_pos[i])},
+            p_rate_positive={"k_per_s": p_list[i]},
             n_below_loq_set=0,
             n_below_loq_dropped=0,
-            _theta=_frozen(theta[i]),
-            _theta_covariance=_frozen([[tc00[i], tc01[i]], [tc01[i], tc11[i]]]),
+            _theta=theta_all[i],
+            _theta_covariance=tcov_all[i],
             _kinds=kinds,
         ))
     return fits

@@ -547,6 +547,17 @@ def test_batch_agrees_with_fit_series(error_model):
         assert_allclose(b.interval(0.9).low, s.interval(0.9).low, rtol=1e-8)
 
 
+def test_batch_results_are_read_only_and_do_not_alias_inputs():
+    t, c = T_DAYS.copy(), _noisy_sfo()
+    fit = fit_sfo_batch([(t, c)])[0]
+    c[0] = -1.0  # the caller's array stays writable and independent
+    assert fit.concentration[0] != -1.0
+    for arr in (fit.estimates, fit.covariance, fit.fitted, fit.residuals, fit.concentration,
+                fit.time_s):
+        with pytest.raises(ValueError):
+            arr[0] = 0.0
+
+
 def test_batch_error_names_the_series():
     inputs = _batch_inputs(n=3)
     inputs[1] = ([0, 1, 2], [5, 5, 5])
