@@ -61,6 +61,7 @@ __all__ = [
     "purge_expired",
     "redact_in_record",
     "install_idempotency",
+    "stores_data",
 ]
 
 log = logging.getLogger("fieldrate.service.idempotency")
@@ -513,14 +514,22 @@ def _api_routes(app: FastAPI) -> list[Any]:
     return [c for c in iter_route_contexts(app.routes) if isinstance(c.original_route, APIRoute)]
 
 
+def stores_data() -> None:
+    """Marker dependency for a POST that stores data without taking a ``WriteSession``.
+
+    ``@router.post(..., dependencies=[Depends(stores_data)])`` makes the route honour
+    ``Idempotency-Key`` (its own write transaction then carries the key's record).
+    """
+
+
 def _writes(route: Any) -> bool:
-    """Whether the route's dependencies open a write session."""
+    """Whether the route takes a write session or is marked with :func:`stores_data`."""
     from service.deps import get_write_session
 
     stack = [route.dependant]
     while stack:
         dep = stack.pop()
-        if dep.call is get_write_session:
+        if dep.call is get_write_session or dep.call is stores_data:
             return True
         stack.extend(dep.dependencies)
     return False

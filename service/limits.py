@@ -64,6 +64,13 @@ class BodySizeLimit:
 
         async def tracking_send(message):
             nonlocal started
+            if too_large:
+                # whatever the application made of the interrupted body (FastAPI answers
+                # 400 "error parsing the body"), the client is told it was too large
+                if message["type"] == "http.response.start" and not started:
+                    started = True
+                    await self._reject(send, f"more than {self.max_body_bytes} bytes")
+                return
             if message["type"] == "http.response.start":
                 started = True
             await send(message)

@@ -180,3 +180,17 @@ def test_openapi_documents_the_header_on_storing_posts_only(client):
     predictions = [p for p in paths if p.endswith("/predictions")]
     for path in predictions:
         assert not has_header(path)
+
+
+def test_csv_import_replays(app, client):
+    from service.api.examples import EXAMPLES_DIR
+
+    text = (EXAMPLES_DIR / "runs_template.csv").read_bytes()
+    headers = {"content-type": "text/csv", **_idem("csv-import-1")}
+    first = client.post("/v1/imports/runs.csv", content=text, headers=headers)
+    assert first.status_code == 201, first.text
+    n = _count(app, Run)
+    again = client.post("/v1/imports/runs.csv", content=text, headers=headers)
+    assert again.status_code == 201 and again.json() == first.json()
+    assert again.headers[REPLAYED_HEADER.lower()] == "true"
+    assert _count(app, Run) == n

@@ -16,6 +16,7 @@ from kinetics.caution import CAUTION_TEXT
 from service import crud, csv_io, report
 from service.deps import Principal, ReadSession, SettingsDep, require_scope
 from service.errors import ItemErrors, ServiceError, TooLarge
+from service.idempotency import stores_data
 from service.schemas import FitOptions
 
 router = APIRouter(tags=["csv exchange"])
@@ -54,6 +55,7 @@ def _problems_to_items(exc: csv_io.CsvFormatError) -> list[dict[str, Any]]:
 @router.post(
     "/imports/runs.csv",
     status_code=201,
+    dependencies=[Depends(stores_data)],  # honours Idempotency-Key
     summary="Import runs from a CSV file (one row per observation), all or nothing",
     openapi_extra={"requestBody": {"required": True, "content": {
         "text/csv": {"schema": {"type": "string"}, "example": _CSV_EXAMPLE}}}},
