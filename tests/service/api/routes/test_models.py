@@ -121,3 +121,17 @@ def test_fixed_pathways_that_cannot_be_identified_is_422(client):
     r = client.get(f"/v1/substances/{sid}/model", params={"pathways": "acid,neutral,base"})
     assert r.status_code == 422
     assert r.json()["error"] in ("not_identifiable", "data_error")
+
+
+def test_run_without_decline_is_422_naming_it(client):
+    sid, study = make_study(client)
+    for t, p in ((30.0, 4.0), (50.0, 4.0), (50.0, 9.0)):
+        client.post("/v1/runs", json=series_run_body(study, temperature_C=t, pH=p))
+    flat = client.post("/v1/runs", json=series_run_body(
+        study, temperature_C=20.0, pH=7.0, conc=[10.0, 10.1, 10.2, 10.3, 10.4])).json()
+    r = client.get(f"/v1/substances/{sid}/model")
+    assert r.status_code == 422
+    assert flat["run_uid"] in r.json()["detail"] and "decline" in r.json()["detail"]
+    # withdrawing that run lets the others be fitted
+    client.post(f"/v1/runs/{flat['run_uid']}/withdraw", json={"reason": "no decline (invented)"})
+    assert client.get(f"/v1/substances/{sid}/model").status_code == 200
