@@ -556,7 +556,7 @@ def _weights(fitted: np.ndarray, error_model: str) -> np.ndarray:
     return 1.0 / np.maximum(np.abs(fitted), floor) ** 2
 
 
-def _gauss_newton_polish(model, theta, t, y, w, steps=3):
+def _gauss_newton_polish(model, theta, t, y, w, steps=10):
     """A few undamped Gauss-Newton steps at fixed weights (tightens convergence)."""
     sw = np.sqrt(w)
     obj = float(np.sum(w * (y - model.predict(theta, t)) ** 2))
@@ -577,20 +577,28 @@ def _gauss_newton_polish(model, theta, t, y, w, steps=3):
         if new > obj * (1.0 + 1e-12) + 1e-300:
             break
         theta, obj = cand, new
-        if np.max(np.abs(step)) < 1e-15:
+        if np.max(np.abs(step)) <= 1e-15 * (1.0 + np.max(np.abs(theta))):
             break
     return theta
 
 
-def _solve_scaled(model, theta0, t, y, error_model):
-    """Minimise on the rescaled problem; returns (theta, weighted objective)."""
+def _solve_scaled(model, theta0, t, y, error_model, fixed_weights=None):
+    """Minimise on the rescaled problem; returns (theta, weighted objective).
+
+    ``error_model="constant"`` with ``fixed_weights`` minimises the weighted sum
+    of squares with those weights; ``"proportional"`` iterates the weights
+    1/f^2 to their fixed point.
+    """
     with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
         theta = np.asarray(theta0, dtype=float)
         f0 = model.predict(theta, t)
         if not np.all(np.isfinite(f0)):
             raise ConvergenceError(f"{model.name}: the starting values give non-finite "
                                    "model concentrations")
-        w = _weights(f0, error_model) if error_model == "proportional" else np.ones_like(y)
+        if error_model == "proportional":
+            w = _weights(f0, error_model)
+        else:
+            w = np.ones_like(y) if fixed_weights is None else fixed_weights
         for _ in range(_IRLS_MAX):
             sw = np.sqrt(w)
 
@@ -612,7 +620,7 @@ def _solve_scaled(model, theta0, t, y, error_model):
             if error_model == "constant":
                 theta = new
                 break
-            change = float(np.max(np.abs(new - theta)))
+            change = float(np.max(np.abs(new - theta) / (1.0 + np.abs(new))))
             theta = new
             w = _weights(model.predict(theta, t), error_model)
             if change < _IRLS_TOL:
@@ -627,34 +635,17 @@ def _solve_scaled(model, theta0, t, y, error_model):
     return theta, obj
 
 
-def _solve_relative(model, theta0, t, y):
-    """Minimise the sum of squared relative residuals (y - f) / f.
+def _observed_weights(y: np.ndarray) -> np.ndarray:
+    """Fixed weights 1 / y^2 (zeros weighted like the smallest positive value).
 
-    Used as the bridge from the constant-variance fit to the reweighting for
-    proportional errors: it is one well-posed least-squares problem whose
-    optimum lies close to the reweighting fixed point, so the reweighting then
-    takes small steps. Returns None if it fails (the caller keeps theta0).
+    Used for the bridge from the constant-variance fit to the reweighting for
+    proportional errors: a weighted least-squares problem with fixed weights
+    is well posed, and its optimum lies close to the reweighting fixed point,
+    so the reweighting then takes small steps.
     """
-    with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
-        def fun(th):
-            return 1.0 - y / model.predict(th, t)
-
-        def jac(th):
-            f = model.predict(th, t)
-            return model.jacobian(th, t) * (y / (f * f))[:, None]
-
-        theta0 = np.asarray(theta0, dtype=float)
-        if not np.all(np.isfinite(fun(theta0))):
-            return None
-        try:
-            res = least_squares(fun, theta0, jac=jac, method="lm", xtol=1e-12, ftol=1e-12,
-                                gtol=1e-12, max_nfev=500 * (theta0.size + 1))
-        except (ValueError, np.linalg.LinAlgError):
-            return None
-        if res.status <= 0 or not np.all(np.isfinite(res.x)) or not np.all(
-                np.isfinite(model.predict(res.x, t))):
-            return None
-        return res.x
+    pos = y > 0
+    floor = float(np.min(y[pos])) if pos.any() else 1.0
+    return 1.0 / np.maximum(y, floor) ** 2
 
 
 def _covariance(model, theta, t, y, error_model, kinds, *, name=None):
@@ -714,8 +705,8 @@ def _fit_engine(model, t, y, starts, error_model):
     """Fit from several starts; returns the parameters on the original scale.
 
     The constant-variance fit is run from every start and the best kept. For
-    proportional errors it is followed by the least-squares fit of relative
-    residuals and then by the reweighting to its fixed point.
+    proportional errors it is followed by a fit with fixed weights 1/y^2 (see
+    :func:`_observed_weights`) and then by the reweighting to its fixed point.
     """
     tscale = float(np.max(t))
     yscale = float(np.max(np.abs(y)))
@@ -736,9 +727,10 @@ def _fit_engine(model, t, y, starts, error_model):
             f"{model.name}: no starting values were available")
     theta = best[0]
     if error_model == "proportional":
-        bridge = _solve_relative(model, theta, ts, ys)
-        if bridge is not None:
-            theta = bridge
+        try:
+            theta, _ = _solve_scaled(model, theta, ts, ys, "constant", _observed_weights(ys))
+        except ConvergenceError:
+            pass  # keep the constant-variance fit as the start of the reweighting
         theta, _ = _solve_scaled(model, theta, ts, ys, "proportional")
     return _from_scaled(theta, model.kinds, tscale, yscale)
 
@@ -1186,16 +1178,7 @@ def fit_sfo_batch(series: Sequence[Sequence[Any]], *, time_unit: str = "d",
     """
     error_model = _choice(error_model, ERROR_MODELS, "error model")
     factor = float(units.time_to_s(1.0, time_unit))
-    preps = []
-    for i, item in enumerate(series):
-        try:
-            tt, cc = item
-        except (TypeError, ValueError):
-            raise DataError(f"series[{i}] must be a (time, concentration) pair") from None
-        try:
-            preps.append(_prepare(tt, cc, time_unit, 2, "SFO", unit_factor=factor))
-        except DataError as exc:
-            raise DataError(f"series[{i}]: {exc}") from None
+    preps = _prepare_batch(series, time_unit, factor)
     if not preps:
         return []
     b = len(preps)
@@ -1221,6 +1204,88 @@ def fit_sfo_batch(series: Sequence[Sequence[Any]], *, time_unit: str = "d",
     # back to seconds and the data's concentration unit, as in _from_scaled
     theta = np.column_stack((theta[:, 0] * yscale, theta[:, 1] - np.log(tscale)))
     return _batch_results(preps, theta, t_s, y, mask, sizes, error_model)
+
+
+def _prepare_batch(series, time_unit: str, factor: float) -> list[_Prepared]:
+    """_prepare for many SFO series, with the common checks vectorised.
+
+    Series that pass every check of the vectorised path are prepared here; any
+    other series goes through :func:`_prepare`, which raises its message (with
+    the series index) or prepares it, so the outcome is that of :func:`_prepare`.
+    """
+    pairs = []
+    for i, item in enumerate(series):
+        try:
+            tt, cc = item
+        except (TypeError, ValueError):
+            raise DataError(f"series[{i}] must be a (time, concentration) pair") from None
+        pairs.append((tt, cc))
+    if not pairs:
+        return []
+
+    def slow(i):
+        try:
+            return _prepare(pairs[i][0], pairs[i][1], time_unit, 2, "SFO", unit_factor=factor)
+        except DataError as exc:
+            raise DataError(f"series[{i}]: {exc}") from None
+
+    b = len(pairs)
+    arrays: list = [None] * b
+    simple = np.zeros(b, dtype=bool)
+    for i, (tt, cc) in enumerate(pairs):
+        try:
+            t = np.array(tt, dtype=float)
+            c = np.array(cc, dtype=float)
+        except (TypeError, ValueError):
+            continue
+        if t.ndim == 1 and c.ndim == 1 and t.size == c.size and t.size > 0:
+            arrays[i] = (t, c)
+            simple[i] = True
+    sizes = np.array([a[0].size if a is not None else 0 for a in arrays])
+    m = int(sizes.max()) if simple.any() else 0
+    out: list = [None] * b
+    if m > 0:
+        t_all = np.full((b, m), np.inf)
+        c_all = np.zeros((b, m))
+        for i in np.flatnonzero(simple):
+            t_all[i, :sizes[i]] = arrays[i][0]
+            c_all[i, :sizes[i]] = arrays[i][1]
+        valid = np.arange(m)[None, :] < sizes[:, None]
+        with np.errstate(invalid="ignore", over="ignore", divide="ignore"):
+            ok = simple.copy()
+            ok &= ~np.any(valid & ~np.isfinite(t_all), axis=1)
+            ok &= ~np.any(valid & (t_all < 0), axis=1)
+            ok &= ~np.any(valid & ~(np.isfinite(c_all) & (c_all >= 0)), axis=1)
+            order = np.argsort(np.where(ok[:, None] & valid, t_all, np.inf), axis=1,
+                               kind="stable")
+            t_all = np.take_along_axis(t_all, order, axis=1)
+            c_all = np.take_along_axis(c_all, order, axis=1)
+            new = np.ones((b, m), dtype=bool)
+            new[:, 1:] = t_all[:, 1:] != t_all[:, :-1]
+            new &= valid
+            group = np.cumsum(new, axis=1) - 1
+            n_times = new.sum(axis=1)
+            ok &= n_times >= 3
+            ok &= np.any(valid & (c_all != c_all[:, :1]), axis=1)
+            pos = valid & (c_all > 0)
+            t_first = np.where(pos, t_all, np.inf).min(axis=1)
+            t_last = np.where(pos, t_all, -np.inf).max(axis=1)
+            ok &= t_last > t_first
+            npos = pos.sum(axis=1)
+            tm = np.where(pos, t_all, 0.0).sum(axis=1) / np.maximum(npos, 1)
+            xm = np.where(pos, t_all - tm[:, None], 0.0)
+            lc = np.where(pos, np.log(np.where(pos, c_all, 1.0)), 0.0)
+            slope = (xm * lc).sum(axis=1) / (xm * xm).sum(axis=1)
+            ok &= np.isfinite(slope) & (slope < 0)
+        t_sec = t_all * factor
+        for i in np.flatnonzero(ok):
+            n = sizes[i]
+            out[i] = _Prepared(t_sec[i, :n].copy(), c_all[i, :n].copy(), group[i, :n].copy(),
+                               int(n_times[i]), time_unit, factor, 0, 0)
+    for i in range(b):
+        if out[i] is None:
+            out[i] = slow(i)
+    return out
 
 
 def _batch_results(preps, theta, t_s, y, mask, sizes, error_model):
@@ -1435,7 +1500,10 @@ def _batch_lm(theta, ts, ys, w, max_iter=500):
         active &= ~((pred <= 1e-12 * obj + 1e-30 * sumsq) | (lam > 1e12))
         f, e, k = _batch_model(theta, ts)
     # Gauss-Newton polish, as in _gauss_newton_polish
-    for _ in range(3):
+    polishing = np.ones(b, dtype=bool)
+    for _ in range(10):
+        if not polishing.any():
+            break
         f, e, k = _batch_model(theta, ts)
         j0 = e
         j1 = -f * k * ts
@@ -1450,61 +1518,12 @@ def _batch_lm(theta, ts, ys, w, max_iter=500):
         cand = theta + step
         fc, _, _ = _batch_model(cand, ts)
         objc = np.sum(w * (ys - fc) ** 2, axis=1)
-        ok = np.isfinite(objc) & (objc <= obj * (1.0 + 1e-12) + 1e-300)
+        ok = polishing & np.isfinite(objc) & (objc <= obj * (1.0 + 1e-12) + 1e-300)
         theta = np.where(ok[:, None], cand, theta)
         obj = np.where(ok, objc, obj)
+        tiny = np.max(np.abs(step), axis=1) <= 1e-15 * (1.0 + np.max(np.abs(theta), axis=1))
+        polishing &= ok & ~tiny
     return theta
-
-
-def _batch_lm_relative(theta, ts, ys, mask, max_iter=500):
-    """Levenberg-Marquardt on the relative residuals 1 - y/f, as in _solve_relative.
-
-    Series whose iteration leaves finite values keep the result; the others
-    keep ``theta`` (as _solve_relative returning None).
-    """
-    b = theta.shape[0]
-    start = theta
-    lam = np.full(b, 1e-3)
-    active = np.ones(b, dtype=bool)
-
-    def parts(th):
-        f, e, k = _batch_model(th, ts)
-        rho = (1.0 - ys / f) * mask
-        scale = ys / (f * f) * mask
-        return rho, scale * e, -scale * f * k * ts
-
-    rho, g0m, g1m = parts(theta)
-    obj = np.sum(rho * rho, axis=1)
-    for _ in range(max_iter):
-        if not active.any():
-            break
-        a00 = np.sum(g0m * g0m, axis=1)
-        a01 = np.sum(g0m * g1m, axis=1)
-        a11 = np.sum(g1m * g1m, axis=1)
-        # fun = 1 - y/f, jac = +(y/f^2) J_f: the Gauss-Newton step is -(G^T G)^-1 G^T rho
-        g0 = -np.sum(g0m * rho, axis=1)
-        g1 = -np.sum(g1m * rho, axis=1)
-        d00 = a00 * (1.0 + lam)
-        d11 = a11 * (1.0 + lam)
-        det = d00 * d11 - a01 * a01
-        s0 = (d11 * g0 - a01 * g1) / det
-        s1 = (d00 * g1 - a01 * g0) / det
-        step = np.column_stack((s0, s1))
-        step[~active] = 0.0
-        cand = theta + step
-        rc, c0m, c1m = parts(cand)
-        objc = np.sum(rc * rc, axis=1)
-        ok = active & np.isfinite(objc) & (objc <= obj)
-        theta = np.where(ok[:, None], cand, theta)
-        obj = np.where(ok, objc, obj)
-        rho = np.where(ok[:, None], rc, rho)
-        g0m = np.where(ok[:, None], c0m, g0m)
-        g1m = np.where(ok[:, None], c1m, g1m)
-        lam = np.where(ok, np.maximum(lam / 10.0, 1e-12), lam * 10.0)
-        pred = s0 * g0 + s1 * g1
-        active &= ~((pred <= 1e-12 * obj + 1e-30) | (lam > 1e12))
-    good = np.all(np.isfinite(theta), axis=1) & np.isfinite(obj)
-    return np.where(good[:, None], theta, start)
 
 
 def _batch_solve(theta, ts, ys, mask, error_model):
@@ -1514,12 +1533,17 @@ def _batch_solve(theta, ts, ys, mask, error_model):
         raise ConvergenceError(f"series[{bad}]: no finite SFO starting values")
     theta = _batch_lm(theta, ts, ys, mask)
     if error_model == "proportional":
-        theta = _batch_lm_relative(theta, ts, ys, mask)
+        # bridge with fixed weights 1/y^2, as in _fit_engine / _observed_weights
+        pos = (ys > 0) & (mask > 0)
+        floor = np.where(pos, ys, np.inf).min(axis=1, keepdims=True)
+        w_obs = mask / np.maximum(ys, floor) ** 2
+        bridged = _batch_lm(theta, ts, ys, w_obs)
+        theta = np.where(np.all(np.isfinite(bridged), axis=1)[:, None], bridged, theta)
         f, _, _ = _batch_model(theta, ts)
         w = _batch_weights(f, mask, error_model)
         for _ in range(_IRLS_MAX):
             new = _batch_lm(theta, ts, ys, w)
-            change = np.max(np.abs(new - theta))
+            change = np.max(np.abs(new - theta) / (1.0 + np.abs(new)))
             theta = new
             f, _, _ = _batch_model(theta, ts)
             w = _batch_weights(f, mask, error_model)

@@ -568,6 +568,25 @@ def test_batch_error_names_the_series():
         fit_sfo_batch(inputs, error_model="poisson")
 
 
+@pytest.mark.parametrize("kwargs,message", [(k, m) for k, m in DATA_ERRORS if len(k) == 2])
+def test_batch_data_errors_match_fit_series(kwargs, message):
+    good = (T_DAYS, _noisy_sfo())
+    with pytest.raises(DataError) as info:
+        fit_sfo_batch([good, (kwargs["time"], kwargs["concentration"])])
+    assert str(info.value).startswith("series[1]: ")
+    assert message in str(info.value)
+
+
+def test_batch_preparation_equals_single_series_preparation():
+    inputs = _batch_inputs(n=12) + [([0, 0, 1, 2, 2], [10, 9, 7, 5, 0.0])]
+    fast = series._prepare_batch(inputs, "d", DAY)
+    for (t, c), p in zip(inputs, fast):
+        q = series._prepare(t, c, "d", 2, "SFO")
+        assert_allclose(p.t_s, q.t_s, rtol=0, atol=0)
+        assert_allclose(p.y, q.y, rtol=0, atol=0)
+        assert np.array_equal(p.group, q.group) and p.n_times == q.n_times
+
+
 def test_batch_handles_time_units():
     inputs = _batch_inputs(n=4)
     in_hours = [(t * 24, c) for t, c in inputs]
