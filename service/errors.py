@@ -25,6 +25,7 @@ from fastapi import FastAPI, Request
 from fastapi.exceptions import RequestValidationError
 from fastapi.responses import JSONResponse
 from pydantic import BaseModel, Field
+from sqlalchemy.exc import DataError as DatabaseDataError
 from sqlalchemy.exc import IntegrityError, OperationalError
 
 from kinetics.errors import (
@@ -230,6 +231,19 @@ def install_error_handlers(app: FastAPI) -> None:
                 "error": "conflict",
                 "detail": "the record conflicts with one stored at the same moment (a duplicate "
                 "name, CAS RN or run); nothing was stored - read the current state and retry",
+            },
+        )
+
+    @app.exception_handler(DatabaseDataError)
+    async def _database_data(_request: Request, exc: DatabaseDataError) -> JSONResponse:
+        # a value the database cannot hold (e.g. a NUL character in text): nothing stored
+        log.info("value refused by the database: %s", exc.orig)
+        return JSONResponse(
+            status_code=422,
+            content={
+                "error": "validation_error",
+                "detail": "a value in the request cannot be stored or searched for (text with a "
+                "NUL character, or a number out of range); nothing was stored",
             },
         )
 

@@ -10,6 +10,7 @@ both give the same numbers for the same data.
 from __future__ import annotations
 
 import json
+import logging
 import math
 from dataclasses import dataclass, field
 from typing import Any, Optional, Sequence
@@ -17,7 +18,7 @@ from typing import Any, Optional, Sequence
 import numpy as np
 
 from kinetics.caution import CAUTION_TEXT
-from kinetics.errors import DataError, InputError, KineticsError
+from kinetics.errors import DataError, FitError, InputError, KineticsError
 from kinetics.series import fit_series
 from kinetics.surface import RateMeasurement, SurfaceFit, fit_surface
 
@@ -31,6 +32,8 @@ __all__ = [
     "model_payload",
     "CHI2_FLAG_PERCENT",
 ]
+
+log = logging.getLogger("fieldrate.service")
 
 #: chi-square error level [%] above which a series fit is flagged (common practice, no source)
 CHI2_FLAG_PERCENT = 15.0
@@ -160,7 +163,26 @@ def _series_fit(run: RunInput, series_model: str, error_model: str):
     return model, fit
 
 
-def compute_fit(
+def compute_fit(runs: Sequence[RunInput], **options: Any) -> FitResult:
+    """Fit every series, then the surface, and collect the diagnostics.
+
+    Keyword arguments as for :func:`_compute_fit`. A numerical failure that the kinetics
+    package did not foresee is reported as a :class:`kinetics.errors.FitError` (a 422
+    with an explanation), never as a server error.
+    """
+    try:
+        return _compute_fit(runs, **options)
+    except KineticsError:
+        raise
+    except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
+        log.exception("unforeseen numerical failure in a fit")
+        raise FitError(
+            f"the fit failed numerically ({type(exc).__name__}: {exc}); check the runs for "
+            "outlying values, or try other fit options"
+        ) from exc
+
+
+def _compute_fit(
     runs: Sequence[RunInput],
     *,
     temperature_model: str,

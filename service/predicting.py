@@ -2,9 +2,13 @@
 
 from __future__ import annotations
 
+import logging
 from typing import Any, Optional
 
+import numpy as np
+
 from kinetics.caution import CAUTION_TEXT
+from kinetics.errors import FitError, KineticsError
 from kinetics.prediction import Prediction, predict
 from kinetics.surface import SurfaceFit
 from service.conditions import ConditionArrays
@@ -12,6 +16,8 @@ from service.errors import TooLarge
 from service.schemas import FitOptions, PredictionOptions
 
 __all__ = ["run_predictions", "prediction_header"]
+
+log = logging.getLogger("fieldrate.service")
 
 
 def run_predictions(
@@ -24,17 +30,26 @@ def run_predictions(
             f"needs {opts.n_draws * len(arrays)} evaluations; at most {max_mc_evaluations} are "
             "accepted per request (use method='delta', fewer draws or fewer conditions)"
         )
-    return predict(
-        surface,
-        arrays.temperature_K,
-        arrays.pH,
-        ionic_strength_M=arrays.ionic_strength_M,
-        salinity=arrays.salinity,
-        level=opts.level,
-        method=opts.method,
-        n_draws=opts.n_draws,
-        seed=opts.seed,
-    )
+    try:
+        return predict(
+            surface,
+            arrays.temperature_K,
+            arrays.pH,
+            ionic_strength_M=arrays.ionic_strength_M,
+            salinity=arrays.salinity,
+            level=opts.level,
+            method=opts.method,
+            n_draws=opts.n_draws,
+            seed=opts.seed,
+        )
+    except KineticsError:
+        raise
+    except (ArithmeticError, ValueError, np.linalg.LinAlgError) as exc:
+        log.exception("unforeseen numerical failure in a prediction")
+        raise FitError(
+            f"the prediction failed numerically ({type(exc).__name__}: {exc}) for these "
+            "conditions; check them against the measured ranges"
+        ) from exc
 
 
 def prediction_header(

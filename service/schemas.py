@@ -54,9 +54,18 @@ _CAS_PATTERN = re.compile(r"^(\d{2,7})-(\d{2})-(\d)$")
 
 
 class Strict(BaseModel):
-    """Base of every request body: finite numbers only, no unknown fields."""
+    """Base of every request body: finite numbers only, no unknown fields, no NUL in text."""
 
     model_config = ConfigDict(allow_inf_nan=False, extra="forbid")
+
+    @model_validator(mode="before")
+    @classmethod
+    def _no_nul(cls, data: Any) -> Any:
+        if isinstance(data, dict):
+            for key, v in data.items():
+                if isinstance(v, str) and "\x00" in v:
+                    raise ValueError(f"{key}: text must not contain NUL characters (\\u0000)")
+        return data
 
 
 class Public(BaseModel):

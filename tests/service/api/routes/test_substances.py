@@ -49,3 +49,11 @@ def test_unknown_id_is_404(client):
 def test_unknown_field_is_422(client):
     r = client.post("/v1/substances", json={"name": "X (invented)", "colour": "blue"})
     assert r.status_code == 422
+
+
+def test_nul_character_is_422_not_500(client):
+    r = client.post("/v1/substances", json=substance_body(name="Nul\u0000azine (invented)"))
+    assert r.status_code == 422
+    assert "NUL" in r.json()["detail"][0]["msg"]
+    assert client.get("/v1/runs/abc%00def").status_code in (404, 422)
+    assert client.get("/v1/substances", params={"name_contains": "a\u0000b"}).status_code in (200, 422)
