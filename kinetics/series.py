@@ -673,10 +673,15 @@ def _covariance(model, theta, t, y, error_model, kinds, *, name=None):
     _, r = np.linalg.qr(a / norms)
     rinv = np.linalg.solve(r, np.eye(p))
     inv = (rinv @ rinv.T) / np.outer(norms, norms)
-    theta_cov = sigma2 * inv
-    g = natural_gradient(theta, kinds)
-    nat = natural_from_theta(theta, kinds)
-    cov = theta_cov * np.outer(g, g)
+    with np.errstate(over="ignore", invalid="ignore"):
+        theta_cov = sigma2 * inv
+        g = natural_gradient(theta, kinds)
+        nat = natural_from_theta(theta, kinds)
+        cov = theta_cov * np.outer(g, g)
+    if not (np.all(np.isfinite(theta_cov)) and np.all(np.isfinite(cov))):
+        raise IdentifiabilityError(f"{name}: the data do not constrain the parameters (their "
+                                   "covariance is not finite); try a model with fewer "
+                                   "parameters")
     se = np.sqrt(np.maximum(np.diag(cov), 0.0))
     return _EngineResult(theta, theta_cov, nat, cov, se, fitted, w, rss, dof, sigma2)
 
