@@ -79,6 +79,7 @@ from kinetics.surface import (
     _check_level,
     _conditions,
     _logsumexp,
+    _logsumexp_terms,
     _ln_concentrations,
 )
 
@@ -495,23 +496,69 @@ def _monte_carlo(
     residual_scale: float,
     dof: int,
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
-    """Percentile intervals of ln k from multivariate-t parameter draws."""
+    """Percentile intervals of ln k from multivariate-t parameter draws.
+
+    ln k of every draw at a block of conditions comes from one matrix product
+    per pathway and a log-sum-exp (:meth:`SurfaceFit._draw_terms`), laid out
+    one row per condition so that the two order statistics each bound needs
+    are selected by an in-place partial sort of contiguous rows. The
+    prediction interval adds one run-scatter draw per parameter draw (scaled
+    by the same :math:`\\sqrt{\\nu/\\chi^2_\\nu}`), shared by all conditions:
+    each condition's interval is a percentile of its own marginal
+    distribution, which sharing leaves unchanged.
+    """
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
     normal = surface.sample_parameters(n_draws, rng)
     scale = np.sqrt(dof / rng.chisquare(dof, size=n_draws))
     draws = surface.estimates[None, :] + (normal - surface.estimates[None, :]) * scale[:, None]
-    q = [0.5 - level / 2.0, 0.5 + level / 2.0]
+    noise = rng.standard_normal(n_draws) * (residual_scale * scale)
+    probs = (0.5 - level / 2.0, 0.5 + level / 2.0)
+    kth, fractions = _order_statistics(n_draws, probs)
     n = T.size
     ci_lo, ci_hi = np.empty(n), np.empty(n)
     pi_lo, pi_hi = np.empty(n), np.empty(n)
     block = max(1, _MC_BLOCK_FLOATS // (n_draws * max(1, len(surface.pathways))))
     for start in range(0, n, block):
         sl = slice(start, min(n, start + block))
-        terms, _ = surface._terms_at(T[sl], lnc[sl], draws)
-        lnk = _logsumexp(terms, axis=1)  # (n_draws, block)
-        lo, hi = np.quantile(lnk, q, axis=0)
-        ci_lo[sl], ci_hi[sl] = lo, hi
-        noise = rng.standard_normal(lnk.shape) * (residual_scale * scale[:, None])
-        lo, hi = np.quantile(lnk + noise, q, axis=0)
-        pi_lo[sl], pi_hi[sl] = lo, hi
+        terms = surface._draw_terms(T[sl], lnc[sl], draws, by_condition=True)
+        lnk = _logsumexp_terms(terms)  # (block, n_draws)
+        del terms
+        with_noise = lnk + noise[None, :]
+        pi_lo[sl], pi_hi[sl] = _row_quantiles(with_noise, kth, fractions)
+        del with_noise
+        ci_lo[sl], ci_hi[sl] = _row_quantiles(lnk, kth, fractions)
     return ci_lo, ci_hi, pi_lo, pi_hi
+
+
+def _order_statistics(
+    n: int, probs: tuple[float, float]
+) -> tuple[list[int], list[float]]:
+    """Order statistics and weights of the linear-interpolation quantile.
+
+    The default definition of :func:`numpy.quantile` (Hyndman and Fan,
+    Am. Stat. 50 (1996) 361-365, definition 7): position :math:`q(n-1)`,
+    interpolated between its two neighbouring order statistics.
+    """
+    kth: list[int] = []
+    fractions: list[float] = []
+    for q in probs:
+        pos = q * (n - 1)
+        low = min(int(math.floor(pos)), n - 1)
+        kth += [low, min(low + 1, n - 1)]
+        fractions.append(pos - low)
+    return kth, fractions
+
+
+def _row_quantiles(
+    values: np.ndarray, kth: list[int], fractions: list[float]
+) -> tuple[np.ndarray, np.ndarray]:
+    """Two quantiles of each row (partitions ``values`` in place)."""
+    values.partition(sorted(set(kth)), axis=1)
+    out = []
+    for i, f in enumerate(fractions):
+        a = values[:, kth[2 * i]]
+        b = values[:, kth[2 * i + 1]]
+        diff = b - a
+        # numpy's interpolation: from the lower value below f = 0.5, else from the upper
+        out.append(a + diff * f if f < 0.5 else b - diff * (1.0 - f))
+    return out[0], out[1]

@@ -319,11 +319,14 @@ class RateMeasurement:
         sal = _finite_float(self.salinity, "salinity", label)
         if sal < 0.0:
             raise InputError(f"salinity must be >= 0{where}, got {sal!r}")
-        # let the water chemistry check its own ranges (Davies limit, seawater T range)
-        try:
-            water.hydronium_hydroxide_molar(ph, t, ionic, sal)
-        except InputError as exc:
-            raise InputError(f"{exc}{where}") from None
+        # let the water chemistry check its own ranges (Davies limit, seawater T range);
+        # in pure water (no ionic strength, no salinity) it checks only the temperature
+        # and pH ranges validated above, so the costly evaluation is skipped there
+        if ionic > 0.0 or sal > 0.0:
+            try:
+                water.hydronium_hydroxide_molar(ph, t, ionic, sal)
+            except InputError as exc:
+                raise InputError(f"{exc}{where}") from None
         for name, value in (
             ("temperature_K", t),
             ("pH", ph),
@@ -762,6 +765,51 @@ class SurfaceFit:
         terms, many = self._terms_at(T, _ln_concentrations(T, ph, ionic, sal), parameters)
         return terms, T, self.reference_temperature_K / T - 1.0, shape, many
 
+    def _check_parameters(self, parameters: Any) -> np.ndarray:
+        """Parameter sets as a finite (n_draws, n_params) float array."""
+        params = np.asarray(parameters, dtype=float)
+        if params.ndim == 1:
+            params = params[None, :]
+        if params.ndim != 2 or params.shape[1] != self.n_params:
+            raise InputError(
+                f"parameters must have shape (n_draws, {self.n_params}) for the parameters "
+                f"{', '.join(self.parameter_names)}; got shape {np.shape(parameters)}"
+            )
+        if not np.all(np.isfinite(params)):
+            raise InputError("parameters must be finite numbers")
+        return params
+
+    def _draw_terms(
+        self, T: np.ndarray, lnc_all: np.ndarray, params: np.ndarray, by_condition: bool = False
+    ) -> list[np.ndarray]:
+        """ln of each pathway's term for many parameter sets.
+
+        The exponent of pathway p is linear in its internal parameters,
+        :math:`a_p - e_p u + \\ln c_p` (+ ln(T/T_ref) for Eyring) with
+        :math:`u = T_\\mathrm{ref}/T - 1`, so all draws at all conditions are
+        one matrix product :math:`[a_p, e_p, 1]\\,[1, -u, \\ln c_p]^T` per
+        pathway. Returns one array per pathway of shape (n_draws, n), or
+        (n, n_draws) with ``by_condition``.
+        """
+        lnc = lnc_all[:, self._pathway_index()]
+        a, e = self._to_internal(params)
+        cond = np.empty((3, T.size))
+        cond[0] = 1.0
+        cond[1] = 1.0 - self.reference_temperature_K / T
+        offset = (
+            np.log(T / self.reference_temperature_K)
+            if self.temperature_model == "eyring" else 0.0
+        )
+        par = np.empty((params.shape[0], 3))
+        par[:, 2] = 1.0
+        out = []
+        for j in range(len(self.pathways)):
+            cond[2] = lnc[:, j] + offset
+            par[:, 0] = a[:, j]
+            par[:, 1] = e[:, j]
+            out.append(cond.T @ par.T if by_condition else par @ cond)
+        return out
+
     def _terms_at(
         self, T: np.ndarray, lnc_all: np.ndarray, parameters: Any
     ) -> tuple[np.ndarray, bool]:
@@ -778,16 +826,7 @@ class SurfaceFit:
             params = np.asarray(self.estimates, dtype=float)
             many = False
         else:
-            params = np.asarray(parameters, dtype=float)
-            if params.ndim == 1:
-                params = params[None, :]
-            if params.ndim != 2 or params.shape[1] != self.n_params:
-                raise InputError(
-                    f"parameters must have shape (n_draws, {self.n_params}) for the parameters "
-                    f"{', '.join(self.parameter_names)}; got shape {np.shape(parameters)}"
-                )
-            if not np.all(np.isfinite(params)):
-                raise InputError("parameters must be finite numbers")
+            params = self._check_parameters(parameters)
             many = True
         a, e = self._to_internal(params)
         if many:
@@ -830,11 +869,12 @@ class SurfaceFit:
             Shape of the broadcast conditions, or (n_draws, n_conditions)
             (conditions flattened) when ``parameters`` is given.
         """
-        terms, _, _, shape, many = self._terms(
-            temperature_K, pH, ionic_strength_M, salinity, parameters
-        )
-        if many:
-            return _logsumexp(terms, axis=1)
+        if parameters is not None:
+            params = self._check_parameters(parameters)
+            T, ph, ionic, sal, _ = _conditions(temperature_K, pH, ionic_strength_M, salinity)
+            lnc = _ln_concentrations(T, ph, ionic, sal)
+            return _logsumexp_terms(self._draw_terms(T, lnc, params))
+        terms, _, _, shape, _ = self._terms(temperature_K, pH, ionic_strength_M, salinity, None)
         return _logsumexp(terms, axis=1).reshape(shape)
 
     def rate_per_s(
@@ -909,18 +949,16 @@ class SurfaceFit:
             Pathway name -> fractions (summing to 1 over the model's
             pathways), in the shape :meth:`ln_k` returns.
         """
-        terms, _, _, shape, many = self._terms(
-            temperature_K, pH, ionic_strength_M, salinity, parameters
-        )
-        axis = 1
-        lnk = _logsumexp(terms, axis=axis)
-        out = {}
-        for j, p in enumerate(self.pathways):
-            if many:
-                out[p] = np.exp(terms[:, j, :] - lnk)
-            else:
-                out[p] = np.exp(terms[:, j] - lnk).reshape(shape)
-        return out
+        if parameters is not None:
+            params = self._check_parameters(parameters)
+            T, ph, ionic, sal, _ = _conditions(temperature_K, pH, ionic_strength_M, salinity)
+            lnc = _ln_concentrations(T, ph, ionic, sal)
+            terms_p = self._draw_terms(T, lnc, params)
+            lnk = _logsumexp_terms(terms_p)
+            return {p: np.exp(t - lnk) for p, t in zip(self.pathways, terms_p)}
+        terms, _, _, shape, _ = self._terms(temperature_K, pH, ionic_strength_M, salinity, None)
+        lnk = _logsumexp(terms, axis=1)
+        return {p: np.exp(terms[:, j] - lnk).reshape(shape) for j, p in enumerate(self.pathways)}
 
     def sample_parameters(
         self, n: int, rng: Any = None, *, distribution: str = "normal"
@@ -1069,6 +1107,42 @@ def _logsumexp(terms: np.ndarray, axis: int) -> np.ndarray:
     """ln of the sum of exp(terms) along ``axis``, without overflow (terms finite)."""
     top = np.max(terms, axis=axis, keepdims=True)
     return np.squeeze(top, axis=axis) + np.log(np.sum(np.exp(terms - top), axis=axis))
+
+
+# ln k within this range is evaluated from plain exponentials without loss
+_LN_DIRECT_LIMIT = 700.0
+
+
+def _logsumexp_terms(terms: Sequence[np.ndarray]) -> np.ndarray:
+    """ln of the sum of exp over a list of same-shape arrays (one per pathway).
+
+    Plain exponentials are summed first (three passes instead of the six of
+    the max-shifted form); where the result leaves ±700, i.e. a term
+    overflowed or all of them underflowed, the max-shifted form is used. The
+    arrays are not modified.
+    """
+    if len(terms) == 1:
+        return np.array(terms[0], dtype=float)
+    total = np.exp(terms[0])
+    tmp = np.empty_like(total)
+    for t in terms[1:]:
+        np.exp(t, out=tmp)
+        total += tmp
+    np.log(total, out=total)
+    if total.size and (
+        not -_LN_DIRECT_LIMIT < float(total.min()) or not float(total.max()) < _LN_DIRECT_LIMIT
+    ):
+        top = terms[0].copy()
+        for t in terms[1:]:
+            np.maximum(top, t, out=top)
+        total.fill(0.0)
+        for t in terms:
+            np.subtract(t, top, out=tmp)
+            np.exp(tmp, out=tmp)
+            total += tmp
+        np.log(total, out=total)
+        total += top
+    return total
 
 
 def _cov_factor(cov: np.ndarray) -> np.ndarray:
@@ -1226,6 +1300,8 @@ class _Candidate:
         hi = np.tile([_LN_K_BOUNDS[1], _E_BOUNDS[1]], self.m)
         self.bounds = (lo, hi)
         self.lnc = design.lnc[:, self.idx]
+        self.prior_rows = np.zeros((self.prior_pos.size, self.p))
+        self.prior_rows[np.arange(self.prior_pos.size), self.prior_pos] = 1.0 / self.prior_sd
 
     def model(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         a, e = z[0::2], z[1::2]
@@ -1261,52 +1337,101 @@ class _Candidate:
         lo, hi = self.bounds
         return np.clip(z0, lo + 1e-6, hi - 1e-6)
 
+    def _weighted(
+        self, z: np.ndarray, sig_inv: np.ndarray
+    ) -> tuple[np.ndarray, np.ndarray]:
+        """Weighted residuals and their Jacobian at ``z``, prior rows appended."""
+        lnk, jac = self.model(z)
+        r = (lnk - self.design.y) * sig_inv
+        j = jac * sig_inv[:, None]
+        if self.prior_pos.size:
+            r = np.concatenate([r, (z[self.prior_pos] - self.prior_mu) / self.prior_sd])
+            j = np.vstack([j, self.prior_rows])
+        return r, j
+
+    def _levenberg_marquardt(
+        self, sig_inv: np.ndarray, z0: np.ndarray
+    ) -> np.ndarray | None:
+        """Unbounded Levenberg-Marquardt with the analytic Jacobian.
+
+        Steps solve :math:`(J^T J + \\lambda D)\\,\\delta = -J^T r` with :math:`D` the
+        running maximum of diag(J^T J) (Marquardt, J. SIAM 11 (1963) 431-441;
+        the scaling of Moré, Lecture Notes in Mathematics 630 (1978) 105-116);
+        :math:`\\lambda` follows the gain ratio of actual to predicted decrease
+        (Nielsen, IMM-REP-1999-05, Technical University of Denmark). Stops when
+        both the actual and the predicted relative decrease of the sum of
+        squares fall below 1e-12, or the step is at rounding level. The problems
+        are tiny (a few parameters, tens of runs), where this direct loop is
+        several times faster than a general-purpose solver. Returns None when
+        it does not converge within the evaluation budget or meets non-finite
+        values.
+        """
+        z = np.array(z0, dtype=float)
+        r, j = self._weighted(z, sig_inv)
+        cost = float(r @ r)
+        if not math.isfinite(cost):
+            return None
+        scale = np.zeros(self.p)
+        lam, nu = 1e-3, 2.0
+        budget = 100 * (self.p + 1)
+        evals = 1
+        a = j.T @ j
+        g = j.T @ r
+        while evals < budget:
+            scale = np.maximum(scale, np.diag(a))
+            if not (np.all(np.isfinite(a)) and np.all(np.isfinite(g))):
+                return None
+            floor = np.where(scale > 0.0, scale, 1.0)
+            try:
+                step = np.linalg.solve(a + np.diag(lam * floor), -g)
+            except np.linalg.LinAlgError:
+                lam *= nu
+                nu *= 2.0
+                continue
+            predicted = -float(2.0 * (g @ step) + step @ (a @ step))
+            small = bool(np.all(np.abs(step) <= 1e-12 * (1.0 + np.abs(z))))
+            z_new = z + step
+            r_new, j_new = self._weighted(z_new, sig_inv)
+            evals += 1
+            cost_new = float(r_new @ r_new)
+            if not math.isfinite(cost_new):
+                lam *= nu
+                nu *= 2.0
+                continue
+            actual = cost - cost_new
+            tiny = predicted <= 1e-12 * cost and abs(actual) <= 1e-12 * cost
+            if actual > 0.0:
+                rho = actual / predicted if predicted > 0.0 else 1.0
+                z, r, j, cost = z_new, r_new, j_new, cost_new
+                a = j.T @ j
+                g = j.T @ r
+                lam *= max(1.0 / 3.0, 1.0 - (2.0 * rho - 1.0) ** 3)
+                nu = 2.0
+            else:
+                lam *= nu
+                nu *= 2.0
+            if tiny or small or lam > 1e20:
+                return z
+        return None
+
     def solve(self, variance: np.ndarray, z0: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         """Weighted least squares at fixed run variances (with prior rows)."""
-        d = self.design
-        sig = np.sqrt(variance)
-        npr = self.prior_pos.size
-
-        cache: dict[str, Any] = {"z": None}
-
-        def evaluate(z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-            # least_squares asks for residuals and Jacobian at the same point
-            if cache["z"] is None or not np.array_equal(cache["z"], z):
-                cache["z"] = np.array(z, copy=True)
-                cache["out"] = self.model(z)
-            return cache["out"]
-
-        def fun(z: np.ndarray) -> np.ndarray:
-            lnk, _ = evaluate(z)
-            r = (lnk - d.y) / sig
-            if npr:
-                r = np.concatenate([r, (z[self.prior_pos] - self.prior_mu) / self.prior_sd])
-            return r
-
-        def jac(z: np.ndarray) -> np.ndarray:
-            _, j = evaluate(z)
-            j = j / sig[:, None]
-            if npr:
-                jp = np.zeros((npr, self.p))
-                jp[np.arange(npr), self.prior_pos] = 1.0 / self.prior_sd
-                j = np.vstack([j, jp])
-            return j
-
+        sig_inv = 1.0 / np.sqrt(variance)
         lo, hi = self.bounds
         # Levenberg-Marquardt first (fast); bounded trust-region reflective when
         # the unbounded solution leaves the physically possible range
-        z = None
-        try:
-            res = optimize.least_squares(
-                fun, z0, jac=jac, method="lm", x_scale="jac",
-                ftol=1e-12, xtol=1e-12, gtol=1e-12, max_nfev=100 * (self.p + 1),
-            )
-            inside = np.all(np.isfinite(res.x)) and np.all(res.x > lo) and np.all(res.x < hi)
-            if res.status > 0 and inside:
-                z = res.x
-        except (ValueError, FloatingPointError):
+        z = self._levenberg_marquardt(sig_inv, z0)
+        if z is not None and not (
+            np.all(np.isfinite(z)) and np.all(z > lo) and np.all(z < hi)
+        ):
             z = None
         if z is None:
+            def fun(zz: np.ndarray) -> np.ndarray:
+                return self._weighted(zz, sig_inv)[0]
+
+            def jac(zz: np.ndarray) -> np.ndarray:
+                return self._weighted(zz, sig_inv)[1]
+
             res = optimize.least_squares(
                 fun, np.clip(z0, lo + 1e-6, hi - 1e-6), jac=jac, bounds=self.bounds,
                 method="trf", x_scale="jac", ftol=1e-12, xtol=1e-12, gtol=1e-12, max_nfev=2000,
@@ -1314,15 +1439,17 @@ class _Candidate:
             z = res.x
         # Gauss-Newton polish (the model is linear in the parameters for one
         # pathway, where this lands on the exact least-squares solution)
+        r, j = self._weighted(z, sig_inv)
         for _ in range(3):
-            r = fun(z)
-            j = jac(z)
             step, *_ = np.linalg.lstsq(j, -r, rcond=None)
+            if np.all(np.abs(step) <= 1e-14 * (1.0 + np.abs(z))):
+                break
             z_new = z + step
             if np.any(z_new <= lo) or np.any(z_new >= hi):
                 break
-            if fun(z_new) @ fun(z_new) <= r @ r:
-                z = z_new
+            r_new, j_new = self._weighted(z_new, sig_inv)
+            if r_new @ r_new <= r @ r:
+                z, r, j = z_new, r_new, j_new
             else:
                 break
         if not np.all(np.isfinite(z)):
@@ -1337,18 +1464,95 @@ class _Candidate:
         r = lnk - self.design.y
         return float(np.sum(r * r / np.maximum(self.design.se2 + tau2, _VARIANCE_FLOOR)))
 
+    def _paule_mandel_root(
+        self, g_slope: Any, t: float, g: float, s: float, lo: float, hi: float | None
+    ) -> float | None:
+        """Root of the Paule-Mandel equation :math:`g(\\tau^2) = Q - (n - p) = 0`.
+
+        Newton steps on :math:`h = (n-p)/Q - 1`, which is close to linear in
+        :math:`\\tau^2` (:math:`Q \\approx A/(s^2 + \\tau^2)` when the run
+        variances are alike), starting from the evaluated point ``t`` with
+        ``g``, slope ``s``; ``lo`` (g > 0) and ``hi`` (g <= 0, or None while no
+        upper end is known) bracket the root. Once bracketed, a step that would
+        leave the bracket or fails to halve the previous one is replaced by
+        bisection (the safeguard of Press et al., "Numerical Recipes", 3rd ed.,
+        section 9.4). Stops at a relative step of 1e-12 and returns the last
+        evaluated point, so its refit is the one kept; None when no bracket
+        could be found.
+        """
+        dof = float(self.dof)
+        dx_old = math.inf if hi is None else hi - lo
+        for _ in range(100):
+            q = g + dof
+            ok = s < 0.0 and math.isfinite(s) and math.isfinite(g) and q > 0.0
+            t_new = t - g * q / (dof * s) if ok else math.nan
+            if hi is None:
+                if not t_new > lo:
+                    return None
+            elif not (lo < t_new < hi) or abs(2.0 * (t_new - t)) > abs(dx_old):
+                t_new = 0.5 * (lo + hi)
+            dx_old = t_new - t
+            if abs(dx_old) <= 1e-12 * max(t, t_new) or (
+                hi is not None and hi - lo <= 1e-12 * hi
+            ):
+                return t
+            g, s = g_slope(t_new)
+            t = t_new
+            if g == 0.0:
+                return t
+            if g > 0.0:
+                lo = t
+            else:
+                hi = t
+        if hi is None:
+            return None
+        return optimize.brentq(
+            lambda x: g_slope(x)[0], lo, hi, xtol=hi * 1e-12, rtol=1e-9, maxiter=200
+        )
+
     def fit(self) -> dict[str, Any]:
-        """Fit with the Paule-Mandel between-run variance; returns a result dict."""
+        """Fit with the Paule-Mandel between-run variance; returns a result dict.
+
+        The root of :math:`g(\\tau^2) = Q(\\tau^2) - (n - p)` is found by
+        safeguarded Newton steps (:meth:`_paule_mandel_root`), each trial
+        :math:`\\tau^2` refitted from the previous solution. The slope includes
+        the movement of the estimates with :math:`\\tau^2`,
+
+        .. math::
+
+            \\frac{dQ}{d\\tau^2} = -\\sum_i \\frac{r_i^2}{v_i^2}
+                + 2\\,(J^T V^{-1} r)^T H^{-1} J^T V^{-2} r, \\qquad
+            H = J^T V^{-1} J + P,
+
+        (implicit differentiation of the normal equations; the second term
+        vanishes without priors), so few refits are needed.
+        """
         d = self.design
-        z = self.start()
         dof = self.dof
-        state = {"z": z}
+        state: dict[str, Any] = {"z": self.start()}
 
         def solve_at(tau2: float) -> np.ndarray:
             var = np.maximum(d.se2 + tau2, _VARIANCE_FLOOR)
-            zz, _ = self.solve(var, state["z"])
-            state["z"] = zz
+            zz, at = self.solve(var, state["z"])
+            state.update(z=zz, tau2=tau2, at_bound=at)
             return zz
+
+        def g_slope(t: float) -> tuple[float, float]:
+            z_t = solve_at(t)
+            lnk, jac = self.model(z_t)
+            r = lnk - d.y
+            v = np.maximum(d.se2 + t, _VARIANCE_FLOOR)
+            rv = r / v
+            slope = -float(rv @ rv)
+            if self.prior_pos.size:
+                h = jac.T @ (jac / v[:, None])
+                h[self.prior_pos, self.prior_pos] += 1.0 / self.prior_sd**2
+                try:
+                    dz = np.linalg.solve(h, jac.T @ (rv / v))
+                    slope += 2.0 * float((jac.T @ rv) @ dz)
+                except np.linalg.LinAlgError:
+                    pass
+            return float(r @ rv) - dof, slope
 
         if not d.has_se and self.prior_pos.size == 0:
             z = solve_at(1.0)
@@ -1356,35 +1560,50 @@ class _Candidate:
             rss = float(np.sum((lnk - d.y) ** 2))
             tau2 = rss / dof
         else:
-            # unweighted fit first: it brackets the root from above
-            z_u = solve_at(1.0 if not d.has_se else max(1.0, float(np.max(d.se2))) * 1e6)
-            lnk, _ = self.model(z_u)
-            rss_u = float(np.sum((lnk - d.y) ** 2))
-            g_lo = None
+            g_lo = s_lo = 0.0
+            tau2 = None
             if d.has_se:
+                g_lo, s_lo = g_slope(0.0)
+                if g_lo <= 0.0:
+                    tau2 = 0.0
+                else:
+                    # Newton from tau2 = 0; the upper end is found on the way
+                    keep = state["z"]
+                    tau2 = self._paule_mandel_root(g_slope, 0.0, g_lo, s_lo, 0.0, None)
+                    if tau2 is None:
+                        state["z"] = keep
+            if tau2 is None:
+                # unweighted fit from the start values: it brackets the root from above
+                keep = state["z"] if d.has_se else None
                 state["z"] = self.start()
-                z0 = solve_at(0.0)
-                g_lo = self.q_stat(z0, 0.0) - dof
-            if d.has_se and g_lo <= 0.0:
-                tau2, z = 0.0, z0
-            else:
+                z_u = solve_at(1.0 if not d.has_se else max(1.0, float(np.max(d.se2))) * 1e6)
+                lnk, _ = self.model(z_u)
+                rss_u = float(np.sum((lnk - d.y) ** 2))
+                if keep is not None:
+                    state["z"] = keep
                 hi = max(rss_u / dof, 1e-300)
+                lo_known = 0.0
                 for _ in range(200):
-                    if self.q_stat(solve_at(hi), hi) - dof <= 0.0:
+                    g_hi, s_hi = g_slope(hi)
+                    if g_hi <= 0.0:
                         break
+                    lo_known, g_known, s_known = hi, g_hi, s_hi
                     hi *= 2.0
-                lo = 0.0 if d.has_se else hi * 1e-30
-
-                def g(t: float) -> float:
-                    return self.q_stat(solve_at(t), t) - dof
-
-                if not d.has_se and g(lo) <= 0.0:
+                if lo_known > 0.0:
+                    lo, g_lo = lo_known, g_known
+                elif d.has_se:
+                    lo = 0.0
+                else:
+                    lo = hi * 1e-30
+                    g_lo, _ = g_slope(lo)
+                if not d.has_se and g_lo <= 0.0:
                     tau2 = lo
                 else:
-                    tau2 = optimize.brentq(g, lo, hi, xtol=hi * 1e-12, rtol=1e-9, maxiter=200)
-                z = solve_at(tau2)
+                    tau2 = self._paule_mandel_root(g_slope, hi, g_hi, s_hi, lo, hi)
+            if state["tau2"] != tau2:
+                solve_at(tau2)
         # final quantities at tau2
-        z, at_bound = self.solve(np.maximum(d.se2 + tau2, _VARIANCE_FLOOR), z)
+        z, at_bound = state["z"], state["at_bound"]
         lnk, jac = self.model(z)
         r = lnk - d.y
         var0 = np.maximum(d.se2 + tau2, _VARIANCE_FLOOR)
@@ -1562,7 +1781,9 @@ def fit_surface(
 
     (Mabey and Mill 1978; Arrhenius 1889) or the Eyring law (Eyring
     1935), fitted by weighted nonlinear least squares on ln k with an analytic
-    Jacobian (:func:`scipy.optimize.least_squares`); the statistical model
+    Jacobian (a direct Levenberg-Marquardt loop; bounded trust-region
+    reflective steps of :func:`scipy.optimize.least_squares` when a parameter
+    leaves its physically possible range); the statistical model
     (Paule-Mandel between-run variance, Knapp-Hartung scale) is described in
     the module docstring. Internally each pathway is parametrised by ln k at
     the reference temperature and :math:`E_a/(R T_\\mathrm{ref})`; results are
