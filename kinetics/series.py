@@ -867,9 +867,11 @@ def fit_series(time: Any, concentration: Any, *, time_unit: str = "d", model: st
         least squares). ``"proportional"``: standard deviation proportional to
         the model value, fitted by iteratively reweighted least squares with
         weights :math:`1/\hat C_i^2` recomputed from the current fit until the
-        estimates stop changing (fitted values below 1e-9 of the largest are
-        floored when forming weights). ``"loglinear"`` accepts only
-        ``"constant"`` (constant variance of ln C).
+        estimates stop changing (relative change < 1e-13; fitted values below
+        1e-9 of the largest are floored when forming weights). The reweighting
+        starts from the constant-variance fit refined with fixed weights
+        :math:`1/C_i^2` (zeros weighted like the smallest positive value).
+        ``"loglinear"`` accepts only ``"constant"`` (constant variance of ln C).
     loq : float, optional
         Limit of quantification, in the concentration unit of the data.
     below_loq : array_like of bool, optional
@@ -894,7 +896,8 @@ def fit_series(time: Any, concentration: Any, *, time_unit: str = "d", model: st
     fitted as logarithms and the DFOP fraction g through its logit, so no bounds
     are needed; the Jacobians are analytic. Starting values come from the
     log-linear SFO fit of the positive values; FOMC, DFOP and HS are started
-    from several points derived from it and the best fit is kept. The optimiser
+    from several points derived from it, each with C0 set to its least-squares
+    value for the other parameters, and the best fit is kept. The optimiser
     (:func:`scipy.optimize.least_squares`, Levenberg-Marquardt) works on times
     divided by the last sampling time and concentrations divided by the largest
     value; the result is refined by a few Gauss-Newton steps. DFOP is reported
@@ -909,8 +912,8 @@ def fit_series(time: Any, concentration: Any, *, time_unit: str = "d", model: st
 
     (Bates and Watts (1988) Nonlinear regression analysis and its applications,
     Wiley), transformed to the natural scale by the delta method. ``se_ln_k``
-    is the standard error of ln k for SFO and of ln DT50 otherwise (the two coincide since
-    :math:`k = \ln 2 / DT_{50}`).
+    is the standard error of ln k for SFO and of ln DT50 otherwise (the two
+    coincide since :math:`k = \ln 2 / DT_{50}`).
 
     **DT50 and DT90** (FOCUS 2006):
 
@@ -947,10 +950,16 @@ def fit_series(time: Any, concentration: Any, *, time_unit: str = "d", model: st
     UnitError
         Unknown ``time_unit``.
     ConvergenceError
-        The optimiser failed from every starting point.
+        The optimiser failed from every starting point, the reweighting did
+        not settle, or the fit ran to a limit that gives no rate: a flat line,
+        a drop to zero before the second sampling time, or an extreme
+        parameter value.
     IdentifiabilityError
-        The data cannot separate the parameters of the chosen model (e.g. a
-        DFOP or HS fit of data that show one phase).
+        The data cannot characterise the parameters of the chosen model: a
+        singular or non-finite covariance, a standard error above 20 on the log
+        (or logit) scale of a parameter or of DT50/DT90, a DFOP fit with one
+        phase only (g at 0 or 1, k1 = k2, or a fast phase over before the second
+        sampling time), or an HS breakpoint outside the sampled period.
     """
     model = _choice(model, SERIES_MODELS, "model")
     method = _choice(method, SERIES_METHODS, "method")

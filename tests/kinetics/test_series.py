@@ -323,6 +323,7 @@ def test_aicc_and_parameter_count_convention():
 def test_rate_t_test_is_one_sided_student_t():
     fit = fit_series(T_DAYS, np.abs(_noisy_sfo(sd=15.0)))
     tval = fit.estimates[1] / fit.standard_errors[1]
+    # FOCUS 2006: one-sided t-test of k > 0 with n - p degrees of freedom
     assert_allclose(fit.p_rate_positive["k_per_s"], stats.t.sf(tval, fit.dof), rtol=1e-12)
     assert 0 < fit.p_rate_positive["k_per_s"] < 0.5
 
@@ -367,6 +368,7 @@ def test_loq_rule_isolated_and_trailing_points():
     c = np.array([10.0, 8.0, np.nan, 5.0, 2.6, np.nan, np.nan, np.nan])
     flags = np.array([False, False, True, False, False, True, True, True])
     fit = fit_series(t, c, loq=0.5, below_loq=flags)
+    # LOQ rule documented in fit_series (common practice, no source):
     # isolated below-LOQ point (day 3) and first trailing one (day 21) at LOQ/2;
     # later trailing points (days 28, 42) dropped
     assert_allclose(fit.time_s / DAY, [0, 1, 3, 7, 14, 21])
