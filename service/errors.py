@@ -27,6 +27,7 @@ from fastapi.responses import JSONResponse
 from pydantic import BaseModel, Field
 from sqlalchemy.exc import DataError as DatabaseDataError
 from sqlalchemy.exc import IntegrityError, OperationalError
+from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from kinetics.errors import (
     ConvergenceError,
@@ -50,6 +51,7 @@ __all__ = [
     "ErrorItem",
     "ErrorBody",
     "ERROR_RESPONSES",
+    "json_error_media_types",
 ]
 
 log = logging.getLogger("fieldrate.service")
@@ -192,6 +194,27 @@ def kinetics_error_body(exc: KineticsError, *, loc: list[Any] | None = None) -> 
     return body
 
 
+def json_error_media_types(schema: dict[str, Any]) -> dict[str, Any]:
+    """Document error bodies as ``application/json`` also on routes answering HTML or CSV.
+
+    FastAPI files the error responses of :data:`ERROR_RESPONSES` under the route's own
+    media type (``text/html`` for the report); the handlers above always answer JSON.
+    """
+    for path_item in schema.get("paths", {}).values():
+        for operation in path_item.values():
+            if not isinstance(operation, dict):
+                continue
+            for status, response in operation.get("responses", {}).items():
+                content = response.get("content") if isinstance(response, dict) else None
+                if not status.startswith(("4", "5")) or not content or "application/json" in content:
+                    continue
+                for media_type in list(content):
+                    schema_ref = content[media_type].get("schema", {}).get("$ref", "")
+                    if schema_ref.endswith("/ErrorBody"):
+                        content["application/json"] = content.pop(media_type)
+    return schema
+
+
 def install_error_handlers(app: FastAPI) -> None:
     """Register the handlers that turn every foreseen error into a 4xx with a clear message."""
 
@@ -201,6 +224,30 @@ def install_error_handlers(app: FastAPI) -> None:
             status_code=422,
             content={"error": "validation_error", "detail": _validation_items(list(exc.errors()))},
         )
+
+    @app.exception_handler(StarletteHTTPException)
+    async def _http(_request: Request, exc: StarletteHTTPException) -> JSONResponse:
+        if exc.status_code == 400:
+            # FastAPI's answer to a body it cannot read at all (not UTF-8 text, cut short)
+            return JSONResponse(status_code=422, content={
+                "error": "validation_error",
+                "detail": [{"loc": ["body"], "type": "json_invalid",
+                            "msg": "the request body cannot be read as JSON text (UTF-8); "
+                            "nothing was stored"}],
+            })
+        code = {404: "not_found", 405: "method_not_allowed"}.get(exc.status_code, "http_error")
+        return JSONResponse(status_code=exc.status_code, headers=exc.headers,
+                            content={"error": code, "detail": str(exc.detail)})
+
+    @app.exception_handler(OverflowError)
+    async def _overflow(_request: Request, exc: OverflowError) -> JSONResponse:
+        # SQLite's driver refuses integers beyond 64 bits (an id or offset of 30 digits)
+        log.info("integer out of range: %s", exc)
+        return JSONResponse(status_code=422, content={
+            "error": "validation_error",
+            "detail": "an integer in the request (an id, limit or offset) is larger than "
+            f"{2**63 - 1}, the largest the database holds; nothing was stored",
+        })
 
     @app.exception_handler(ItemErrors)
     async def _items(_request: Request, exc: ItemErrors) -> JSONResponse:

@@ -586,6 +586,8 @@ def install_idempotency(app: FastAPI) -> None:
     build_schema = app.openapi
 
     def openapi() -> dict[str, Any]:
-        return document_idempotency(app, build_schema())
+        from service.errors import json_error_media_types
+
+        return json_error_media_types(document_idempotency(app, build_schema()))
 
     app.openapi = openapi  # type: ignore[method-assign]

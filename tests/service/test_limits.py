@@ -171,3 +171,36 @@ def test_non_finite_numbers_are_422_in_every_example_body(client):
 def test_non_finite_query_numbers_are_422(client, name, value):
     r = client.get("/v1/runs", params={name: value})
     assert r.status_code == 422, r.text
+
+
+def _number_query_params(spec):
+    for path, item in spec["paths"].items():
+        for method, op in item.items():
+            for param in op.get("parameters", []):
+                if param.get("in") != "query":
+                    continue
+                schema = param.get("schema", {})
+                types = {schema.get("type")} | {s.get("type") for s in schema.get("anyOf", [])}
+                if "number" in types:
+                    yield method, path, param["name"]
+
+
+def test_non_finite_numbers_are_422_in_every_query_parameter(db_url):
+    upgrade_head(db_url)
+    settings = Settings(database_url=db_url)
+    load_demo(settings)
+    client = _client(settings)
+    try:
+        found = list(_number_query_params(client.get("/openapi.json").json()))
+        assert found
+        for method, path, name in found:
+            url = path.replace("{substance_id}", "1").replace("{study_id}", "1").replace(
+                "{run_uid}", "x")
+            for bad in ("nan", "inf", "-Infinity"):
+                r = client.request(method.upper(), url, params={name: bad},
+                                   json={} if method == "post" else None)
+                assert r.status_code == 422, (method, path, name, bad, r.status_code, r.text[:200])
+                assert name in r.text, (method, path, name, r.text[:300])
+        print(f"non-finite query parameters refused: {len(found)} parameters x 3 values")
+    finally:
+        client.__exit__(None, None, None)
