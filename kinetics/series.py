@@ -577,7 +577,7 @@ def _gauss_newton_polish(model, theta, t, y, w, steps=10):
         if new > obj * (1.0 + 1e-12) + 1e-300:
             break
         theta, obj = cand, new
-        if np.max(np.abs(step)) <= 1e-15 * (1.0 + np.max(np.abs(theta))):
+        if np.max(np.abs(step)) <= 1e-13 * (1.0 + np.max(np.abs(theta))):
             break
     return theta
 
@@ -1535,7 +1535,7 @@ def _batch_lm(theta, ts, ys, w, max_iter=500):
         ok = polishing & np.isfinite(objc) & (objc <= obj * (1.0 + 1e-12) + 1e-300)
         theta = np.where(ok[:, None], cand, theta)
         obj = np.where(ok, objc, obj)
-        tiny = np.max(np.abs(step), axis=1) <= 1e-15 * (1.0 + np.max(np.abs(theta), axis=1))
+        tiny = np.max(np.abs(step), axis=1) <= 1e-13 * (1.0 + np.max(np.abs(theta), axis=1))
         polishing &= ok & ~tiny
     return theta
 
