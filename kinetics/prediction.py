@@ -498,13 +498,16 @@ def _monte_carlo(
 ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
     """Percentile intervals of ln k from multivariate-t parameter draws.
 
-    ln k of every draw at a block of conditions comes from one matrix product
-    per pathway and a log-sum-exp (:meth:`SurfaceFit._draw_terms`), laid out
-    one row per condition so that the two order statistics each bound needs
-    are selected by an in-place partial sort of contiguous rows. The
-    prediction interval adds one run-scatter draw per parameter draw (scaled
-    by the same :math:`\\sqrt{\\nu/\\chi^2_\\nu}`), shared by all conditions:
-    each condition's interval is a percentile of its own marginal
+    The terms of every draw at a block of conditions come from one matrix
+    product per pathway (:meth:`SurfaceFit._draw_terms`), laid out one row per
+    condition. Their exponentials are summed to k itself: ln is monotone, so
+    the order statistics of ln k are the logarithms of those of k, and only
+    the few selected values need a logarithm (blocks whose selected rates
+    leave about 1e-280..1e280 1/s are redone in ln space). The prediction
+    interval multiplies each draw by one run-scatter factor
+    :math:`\\exp(\\varepsilon)`, :math:`\\varepsilon \\sim N(0, \\sigma_\\mathrm{run}^2)`
+    scaled by the same :math:`\\sqrt{\\nu/\\chi^2_\\nu}`, shared by all
+    conditions: each condition's interval is a percentile of its own marginal
     distribution, which sharing leaves unchanged.
     """
     rng = seed if isinstance(seed, np.random.Generator) else np.random.default_rng(seed)
@@ -512,6 +515,7 @@ def _monte_carlo(
     scale = np.sqrt(dof / rng.chisquare(dof, size=n_draws))
     draws = surface.estimates[None, :] + (normal - surface.estimates[None, :]) * scale[:, None]
     noise = rng.standard_normal(n_draws) * (residual_scale * scale)
+    factor = np.exp(noise)
     probs = (0.5 - level / 2.0, 0.5 + level / 2.0)
     kth, fractions = _order_statistics(n_draws, probs)
     n = T.size
@@ -521,13 +525,36 @@ def _monte_carlo(
     for start in range(0, n, block):
         sl = slice(start, min(n, start + block))
         terms = surface._draw_terms(T[sl], lnc[sl], draws, by_condition=True)
-        lnk = _logsumexp_terms(terms)  # (block, n_draws)
+        k = terms[0]
+        np.exp(k, out=k)
+        for t in terms[1:]:
+            np.exp(t, out=t)
+            k += t
         del terms
-        with_noise = lnk + noise[None, :]
-        pi_lo[sl], pi_hi[sl] = _row_quantiles(with_noise, kth, fractions)
-        del with_noise
-        ci_lo[sl], ci_hi[sl] = _row_quantiles(lnk, kth, fractions)
+        ci_stats = np.log(_row_order_stats(k, kth))
+        k *= factor[None, :]
+        pi_stats = np.log(_row_order_stats(k, kth))
+        del k
+        if not (_safe(ci_stats) and _safe(pi_stats)):
+            terms = surface._draw_terms(T[sl], lnc[sl], draws, by_condition=True)
+            lnk = _logsumexp_terms(terms)  # (block, n_draws)
+            del terms
+            ci_stats = _row_order_stats(lnk, kth)
+            lnk += noise[None, :]
+            pi_stats = _row_order_stats(lnk, kth)
+            del lnk
+        ci_lo[sl], ci_hi[sl] = _interpolate(ci_stats, fractions)
+        pi_lo[sl], pi_hi[sl] = _interpolate(pi_stats, fractions)
     return ci_lo, ci_hi, pi_lo, pi_hi
+
+
+# selected ln k beyond this were summed from exponentials too close to the
+# floating-point limits to be exact; such blocks are redone in ln space
+_LN_K_SAFE = 645.0
+
+
+def _safe(ln_values: np.ndarray) -> bool:
+    return bool(np.all(np.abs(ln_values) < _LN_K_SAFE))
 
 
 def _order_statistics(
@@ -537,7 +564,9 @@ def _order_statistics(
 
     The default definition of :func:`numpy.quantile` (Hyndman and Fan,
     Am. Stat. 50 (1996) 361-365, definition 7): position :math:`q(n-1)`,
-    interpolated between its two neighbouring order statistics.
+    interpolated between its two neighbouring order statistics. Returns the
+    four 0-based ranks (low and high neighbour of each quantile) and the two
+    interpolation weights.
     """
     kth: list[int] = []
     fractions: list[float] = []
@@ -549,16 +578,74 @@ def _order_statistics(
     return kth, fractions
 
 
-def _row_quantiles(
-    values: np.ndarray, kth: list[int], fractions: list[float]
+def _interpolate(
+    stats_: np.ndarray, fractions: list[float]
 ) -> tuple[np.ndarray, np.ndarray]:
-    """Two quantiles of each row (partitions ``values`` in place)."""
-    values.partition(sorted(set(kth)), axis=1)
+    """The two quantiles from their neighbouring order statistics (columns)."""
     out = []
     for i, f in enumerate(fractions):
-        a = values[:, kth[2 * i]]
-        b = values[:, kth[2 * i + 1]]
+        a = stats_[:, 2 * i]
+        b = stats_[:, 2 * i + 1]
         diff = b - a
         # numpy's interpolation: from the lower value below f = 0.5, else from the upper
         out.append(a + diff * f if f < 0.5 else b - diff * (1.0 - f))
     return out[0], out[1]
+
+
+# Draws in the subsample that sets the tail thresholds of _row_order_stats.
+_TAIL_SUBSAMPLE = 500
+
+
+def _row_order_stats(values: np.ndarray, kth: list[int]) -> np.ndarray:
+    """Exact order statistics ``kth`` (0-based ranks) of every row of ``values``.
+
+    A full partial sort of each row costs far more than the comparisons
+    needed when the ranks sit in the tails (the 2.5 % and 97.5 % points). The
+    first :data:`_TAIL_SUBSAMPLE` draws of each row (the draws are
+    independent, so they are a random subsample) give a threshold below
+    which about twice the needed number of values fall, and one above; only
+    the values beyond the thresholds are sorted. A row whose threshold
+    happens to leave too few values is partially sorted in full, so the
+    result is always exact. ``values`` is not modified.
+    """
+    rows, n = values.shape
+    ranks = np.asarray(kth)
+    low = ranks[ranks < n // 2]
+    high = ranks[ranks >= n // 2]
+    need_lo = int(low.max()) + 1 if low.size else 0
+    need_hi = n - int(high.min()) if high.size else 0
+    sub_n = _TAIL_SUBSAMPLE
+    if n < 8 * sub_n or max(need_lo, need_hi) > 0.1 * n:
+        part = np.partition(values, sorted(set(kth)), axis=1)
+        return part[:, ranks]
+    out = np.empty((rows, ranks.size))
+    sub = values[:, :sub_n]
+    r_lo = min(sub_n - 1, int(2 * need_lo * sub_n / n) + 10)
+    r_hi = max(0, sub_n - 1 - (int(2 * need_hi * sub_n / n) + 10))
+    sub = np.partition(sub, [r_lo, r_hi], axis=1)
+    bad = np.zeros(rows, dtype=bool)
+    for side, rank_set, r in (("low", low, r_lo), ("high", high, r_hi)):
+        if not rank_set.size:
+            continue
+        threshold = sub[:, r : r + 1]
+        mask = values <= threshold if side == "low" else values >= threshold
+        count = mask.sum(axis=1)
+        need = need_lo if side == "low" else need_hi
+        bad |= count < need
+        picked = values[mask] if side == "low" else -values[mask]
+        width = int(count.max())
+        padded = np.full((rows, width), np.inf)
+        starts = np.cumsum(count) - count
+        row_of = np.repeat(np.arange(rows), count)
+        padded[row_of, np.arange(picked.size) - starts[row_of]] = picked
+        # rank among the candidates: from the bottom (low) or from the top (high)
+        local = rank_set if side == "low" else n - 1 - rank_set
+        sel = np.partition(padded, sorted(set(local.tolist())), axis=1)[:, local]
+        cols = np.flatnonzero(ranks < n // 2) if side == "low" else np.flatnonzero(
+            ranks >= n // 2
+        )
+        out[:, cols] = sel if side == "low" else -sel
+    if bad.any():
+        part = np.partition(values[bad], sorted(set(kth)), axis=1)
+        out[bad] = part[:, ranks]
+    return out
