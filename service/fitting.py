@@ -31,12 +31,28 @@ __all__ = [
     "options_key",
     "model_payload",
     "CHI2_FLAG_PERCENT",
+    "MAX_SE_LN_K_FITTED",
+    "excluded_runs",
 ]
 
 log = logging.getLogger("fieldrate.service")
 
 #: chi-square error level [%] above which a series fit is flagged (common practice, no source)
 CHI2_FLAG_PERCENT = 15.0
+
+#: a series whose fitted ln k has a standard error above this shows no measurable decline
+#: and is left out of the surface, as a laboratory would report it (the same rule as the
+#: study simulations of :mod:`kinetics.design`; common practice, no source)
+MAX_SE_LN_K_FITTED = 1.0
+
+#: one-sided confidence level of the upper bound on k quoted for an excluded run
+UPPER_BOUND_LEVEL = 0.95
+
+#: fallback detection limit: a run is taken to show a decline once it lost this fraction of
+#: its initial concentration over its duration (common practice, no source)
+DETECTABLE_LOSS_FRACTION = 0.10
+
+_SECONDS_PER_DAY = 86400.0
 
 
 @dataclass(frozen=True)
@@ -163,6 +179,100 @@ def _series_fit(run: RunInput, series_model: str, error_model: str):
     return model, fit
 
 
+def _format_duration(seconds: float) -> str:
+    if seconds >= _SECONDS_PER_DAY:
+        return f"{seconds / _SECONDS_PER_DAY:.3g} d"
+    return f"{seconds / 3600.0:.3g} h"
+
+
+def _decline_evidence(run: RunInput) -> dict[str, Any]:
+    """What a log-linear regression of ln C on t says about the decline of a series.
+
+    Uses the quantified samples (concentration > 0, not below the LOQ). Returns
+    ``significant`` (the one-sided lower confidence bound on k is above 0), the one-sided
+    upper bound on k [1/s] (None when it cannot be computed or is not positive) and the
+    duration of the run [s].
+
+    .. math:: \\ln C = a - k t, \\quad k_{up} = \\hat k + t_{0.95,\\,n-2}\\,\\mathrm{se}(\\hat k)
+
+    (ordinary least squares with a Student t quantile; textbook regression, e.g. Draper and
+    Smith (1998), Applied Regression Analysis, 3rd ed., Wiley, ch. 1.)
+    """
+    from scipy import stats
+
+    t_all = np.asarray(run.time_s, dtype=float)
+    c = np.asarray(run.concentration, dtype=float)
+    below = np.asarray(run.below_loq, dtype=bool) if run.below_loq else np.zeros(c.size, dtype=bool)
+    duration = float(t_all.max() - t_all.min()) if t_all.size else 0.0
+    keep = np.isfinite(c) & (c > 0) & ~below
+    t, y = t_all[keep], np.log(c[keep]) if keep.any() else np.array([])
+    out: dict[str, Any] = {"significant": None, "k_upper_per_s": None, "duration_s": duration}
+    if t.size < 3 or np.ptp(t) == 0:
+        return out
+    tc = t - t.mean()
+    sxx = float(tc @ tc)
+    slope = float(tc @ (y - y.mean())) / sxx
+    resid = y - y.mean() - slope * tc
+    dof = t.size - 2
+    se = math.sqrt(max(float(resid @ resid) / dof, 0.0) / sxx)
+    q = float(stats.t.ppf(UPPER_BOUND_LEVEL, dof))
+    k_hat = -slope
+    out["significant"] = bool(k_hat - q * se > 0)
+    upper = k_hat + q * se
+    out["k_upper_per_s"] = upper if math.isfinite(upper) and upper > 0 else None
+    return out
+
+
+def _no_decline_entry(run: RunInput, evidence: dict[str, Any], why: str) -> dict[str, Any]:
+    """Diagnostics of a series left out of the surface because it shows no measurable decline."""
+    duration = evidence["duration_s"]
+    k_up = evidence["k_upper_per_s"]
+    if k_up is not None:
+        basis = (
+            f"one-sided {UPPER_BOUND_LEVEL:.0%} upper confidence bound of a log-linear "
+            "regression of ln(concentration) on time"
+        )
+    elif duration > 0:
+        k_up = -math.log(1.0 - DETECTABLE_LOSS_FRACTION) / duration
+        basis = (
+            f"less than {DETECTABLE_LOSS_FRACTION:.0%} loss over the run duration "
+            "(common practice, no source)"
+        )
+    else:
+        basis = None
+    over = f" over {_format_duration(duration)}" if duration > 0 else ""
+    reason = f"no measurable decline{over}"
+    if k_up is not None:
+        reason += (
+            f": k is below about {k_up:.2g} 1/s (DT50 above about "
+            f"{_format_duration(math.log(2.0) / k_up)}; {basis})"
+        )
+    reason += f". {why} The run is kept as stored but left out of the rate surface."
+    return {
+        "status": "excluded",
+        "exclusion_reason": reason,
+        "k_upper_bound_per_s": _finite(k_up),
+        "k_upper_bound_basis": basis,
+        "dt50_lower_bound_s": _finite(math.log(2.0) / k_up) if k_up else None,
+        "series_model": None,
+        "k_per_s": None, "se_ln_k": None, "dt50_s": None, "dt90_s": None,
+        "chi2_error_level_percent": None,
+        "n_points": len(run.time_s), "dof": None, "parameters": [], "aicc": None,
+        "time_s": _finite_list(run.time_s), "observed": _finite_list(run.concentration),
+        "fitted": [], "residuals": [], "p_rate_positive": {},
+        "ln_k_residual_from_surface": None,
+    }
+
+
+def excluded_runs(runs: Sequence[dict[str, Any]]) -> list[dict[str, Any]]:
+    """The runs of a fit's diagnostics that were left out of the surface, with the reason."""
+    return [
+        {"run_uid": d.get("run_uid"), "version": d.get("version"), "label": d["label"],
+         "reason": d.get("exclusion_reason")}
+        for d in runs if d.get("status") == "excluded"
+    ]
+
+
 def compute_fit(runs: Sequence[RunInput], **options: Any) -> FitResult:
     """Fit every series, then the surface, and collect the diagnostics.
 
@@ -208,7 +318,8 @@ def _compute_fit(
             "values, then ask again"
         )
     measurements: list[RateMeasurement] = []
-    diags: list[dict[str, Any]] = []
+    diags: list[dict[str, Any]] = []  # every run, in input order
+    used: list[dict[str, Any]] = []  # the runs entering the surface, aligned with measurements
     for run in runs:
         d: dict[str, Any] = {
             "run_uid": run.run_uid,
@@ -221,12 +332,33 @@ def _compute_fit(
         }
         try:
             if run.kind == "series":
-                model, fit = _series_fit(run, series_model, error_model)
+                try:
+                    model, fit = _series_fit(run, series_model, error_model)
+                except KineticsError as exc:
+                    evidence = _decline_evidence(run)
+                    if evidence["significant"] is not False:
+                        raise
+                    d.update(_no_decline_entry(
+                        run, evidence,
+                        f"The series could not be fitted ({str(exc).removeprefix(run.label + ': ')}).",
+                    ))
+                    diags.append(d)
+                    continue
+                if not (math.isfinite(fit.se_ln_k) and fit.se_ln_k <= MAX_SE_LN_K_FITTED):
+                    d.update(_no_decline_entry(
+                        run, _decline_evidence(run),
+                        f"The {model} fit leaves ln k undetermined (standard error "
+                        + (f"{fit.se_ln_k:.3g}" if math.isfinite(fit.se_ln_k) else "unbounded")
+                        + f", above {MAX_SE_LN_K_FITTED:g}; common practice, no source).",
+                    ))
+                    diags.append(d)
+                    continue
                 m = RateMeasurement.from_series_fit(
                     fit, temperature_K=run.temperature_K, pH=run.pH,
                     ionic_strength_M=run.ionic_strength_M, label=run.label,
                 )
                 d.update(
+                    status="fitted",
                     series_model=model,
                     k_per_s=_finite(fit.k_per_s),
                     se_ln_k=_finite(fit.se_ln_k),
@@ -260,6 +392,7 @@ def _compute_fit(
                         label=run.label,
                     )
                 d.update(
+                    status="fitted",
                     series_model=None,
                     k_per_s=_finite(m.k_per_s),
                     se_ln_k=_finite(m.se_ln_k),
@@ -279,20 +412,39 @@ def _compute_fit(
             raise _with_label(exc, run.label) from None
         measurements.append(m)
         diags.append(d)
+        used.append(d)
+    left_out = excluded_runs(diags)
+    note = ""
+    if left_out:
+        note = (
+            f" ({len(left_out)} run(s) left out for no measurable decline: "
+            + "; ".join(e["label"] for e in left_out) + ")"
+        )
+    if len(measurements) < 2:
+        raise DataError(
+            f"a rate surface needs at least 2 runs with a measurable decline or a reported "
+            f"rate; {len(measurements)} remain{note}. Add runs at conditions where the "
+            "substance declines measurably (higher temperature, other pH), then ask again"
+        )
     if len({m.se_ln_k is None for m in measurements}) > 1:
-        without = [d["label"] for d, m in zip(diags, measurements) if m.se_ln_k is None]
+        without = [d["label"] for d, m in zip(used, measurements) if m.se_ln_k is None]
         raise InputError(
             "either every run or no run must carry a standard error of ln k; these runs have "
             f"none: {'; '.join(without)}. Give se_ln_k for the reported rate constants"
         )
     fixed: Any = "auto" if pathways == "auto" else tuple(pathways.split(","))
-    surface = fit_surface(
-        measurements,
-        temperature_model=temperature_model,
-        pathways=fixed,
-        ea_prior_J_per_mol=ea_prior_J_per_mol,
-        reference_temperature_K=reference_temperature_K,
-    )
+    try:
+        surface = fit_surface(
+            measurements,
+            temperature_model=temperature_model,
+            pathways=fixed,
+            ea_prior_J_per_mol=ea_prior_J_per_mol,
+            reference_temperature_K=reference_temperature_K,
+        )
+    except KineticsError as exc:
+        if not note:
+            raise
+        raise type(exc)(f"{exc}{note}") from None
     ln_k_surface = np.asarray(
         surface.ln_k(
             np.array([m.temperature_K for m in measurements]),
@@ -301,7 +453,7 @@ def _compute_fit(
         ),
         dtype=float,
     )
-    for d, m, lk in zip(diags, measurements, ln_k_surface):
+    for d, m, lk in zip(used, measurements, ln_k_surface):
         d["ln_k_residual_from_surface"] = _finite(math.log(m.k_per_s) - lk)
     return FitResult(surface=surface, runs=diags)
 
@@ -342,6 +494,8 @@ def model_flags(surface: SurfaceFit, runs: list[dict[str, Any]]) -> list[str]:
             f"only {surface.dof} residual degree(s) of freedom: intervals are wide and the "
             "model choice is weakly supported"
         )
+    for e in excluded_runs(runs):
+        flags.append(f"{e['label']}: left out of the surface: {e['reason']}")
     for d in runs:
         chi2 = d.get("chi2_error_level_percent")
         if chi2 is not None and chi2 > CHI2_FLAG_PERCENT:
@@ -399,6 +553,7 @@ def model_payload(
             {**c.to_dict(), "rss": _finite(c.rss), "aicc": _finite(c.aicc)} for c in s.candidates
         ],
         "runs": result.runs,
+        "excluded_runs": excluded_runs(result.runs),
         "flags": model_flags(s, result.runs),
         "caution": CAUTION_TEXT,
     }

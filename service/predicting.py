@@ -60,8 +60,12 @@ def prediction_header(
     fit_options: FitOptions,
     substance_id: Optional[int] = None,
     data_version: Optional[str] = None,
+    excluded_runs: Optional[list[dict[str, Any]]] = None,
 ) -> dict[str, Any]:
-    """Everything of the prediction response except the predictions themselves."""
+    """Everything of the prediction response except the predictions themselves.
+
+    ``excluded_runs`` lists the runs the surface left out (:func:`service.fitting.excluded_runs`).
+    """
     rs = float(pred.residual_scale)
     return {
         "caution": CAUTION_TEXT,
@@ -75,6 +79,7 @@ def prediction_header(
         "temperature_range_K": [float(v) for v in surface.temperature_range_K],
         "pH_range": [float(v) for v in surface.pH_range],
         "pathways_supported": list(surface.pathways),
+        "excluded_runs": list(excluded_runs or []),
         "n_conditions": len(pred),
         "layout": opts.layout,
     }

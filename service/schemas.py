@@ -617,6 +617,28 @@ class RunDiagnosticsPublic(Public):
     residuals: list[Optional[float]]
     p_rate_positive: dict[str, Optional[float]]
     ln_k_residual_from_surface: Optional[float]
+    status: Literal["fitted", "excluded"] = Field(
+        default="fitted",
+        description="'excluded': the series shows no measurable decline and was left out of "
+        "the surface (the stored run is unchanged)",
+    )
+    exclusion_reason: Optional[str] = None
+    k_upper_bound_per_s: Optional[float] = Field(
+        default=None, description="excluded run: k is below about this value [1/s]"
+    )
+    k_upper_bound_basis: Optional[str] = None
+    dt50_lower_bound_s: Optional[float] = Field(
+        default=None, description="excluded run: DT50 is above about this value [s]"
+    )
+
+
+class ExcludedRunPublic(Public):
+    """A run left out of the surface fit, with the reason in plain words."""
+
+    run_uid: Optional[str]
+    version: Optional[int]
+    label: str
+    reason: Optional[str]
 
 
 class CandidatePublic(Public):
@@ -658,6 +680,9 @@ class SurfaceModelPublic(Public):
     pH_range: list[float]
     candidates: list[CandidatePublic]
     runs: list[RunDiagnosticsPublic]
+    excluded_runs: list[ExcludedRunPublic] = Field(
+        default_factory=list, description="runs left out of the surface (no measurable decline)"
+    )
     flags: list[str]
     caution: str
 
@@ -779,6 +804,9 @@ class PredictionResponse(Public):
     temperature_range_K: list[float]
     pH_range: list[float]
     pathways_supported: list[str]
+    excluded_runs: list[ExcludedRunPublic] = Field(
+        default_factory=list, description="runs left out of the surface (no measurable decline)"
+    )
     n_conditions: int
     layout: Literal["rows", "columns"]
     predictions: Optional[list[PredictionRow]] = None

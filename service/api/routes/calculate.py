@@ -15,7 +15,13 @@ from service.api.fastjson import FastJSONRoute
 from service.conditions import condition_arrays
 from service.deps import Principal, require_scope
 from service.errors import TooLarge
-from service.fitting import FitResult, compute_fit, model_payload, run_input_from_payload
+from service.fitting import (
+    FitResult,
+    compute_fit,
+    excluded_runs,
+    model_payload,
+    run_input_from_payload,
+)
 from service.jsonout import prediction_chunks
 from service.predicting import prediction_header, run_predictions
 from service.schemas import CalculationRequest, CalculationResponse
@@ -71,7 +77,10 @@ def calculate(
             media_type="application/json",
         )
     pred = run_predictions(fit.surface, arrays, body, max_mc_evaluations=settings.max_montecarlo_evaluations)
-    header = prediction_header(fit.surface, pred, opts=body, fit_options=body.fit_options)
+    header = prediction_header(
+        fit.surface, pred, opts=body, fit_options=body.fit_options,
+        excluded_runs=excluded_runs(fit.runs),
+    )
     prefix = json.dumps(head, allow_nan=False, ensure_ascii=False)[:-1] + ',"prediction":'
 
     def chunks():

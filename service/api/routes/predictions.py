@@ -12,6 +12,7 @@ from service.api.examples import openapi_examples
 from service.api.fastjson import FastJSONRoute
 from service.conditions import condition_arrays
 from service.deps import Principal, require_scope
+from service.fitting import excluded_runs
 from service.jsonout import prediction_chunks
 from service.modelstore import load_model
 from service.predicting import prediction_header, run_predictions
@@ -51,6 +52,7 @@ def predict_substance(
     header = prediction_header(
         stored.result.surface, pred, opts=body, fit_options=body.fit_options,
         substance_id=substance_id, data_version=stored.data_version,
+        excluded_runs=excluded_runs(stored.result.runs),
     )
     if as_of is not None:
         header["as_of"] = stored.meta()["as_of"]

@@ -123,15 +123,59 @@ def test_fixed_pathways_that_cannot_be_identified_is_422(client):
     assert r.json()["error"] in ("not_identifiable", "data_error")
 
 
-def test_run_without_decline_is_422_naming_it(client):
+def test_run_without_decline_is_excluded_and_named(client):
     sid, study = make_study(client)
     for t, p in ((30.0, 4.0), (50.0, 4.0), (50.0, 9.0)):
         client.post("/v1/runs", json=series_run_body(study, temperature_C=t, pH=p))
     flat = client.post("/v1/runs", json=series_run_body(
         study, temperature_C=20.0, pH=7.0, conc=[10.0, 10.1, 10.2, 10.3, 10.4])).json()
     r = client.get(f"/v1/substances/{sid}/model")
-    assert r.status_code == 422
-    assert flat["run_uid"] in r.json()["detail"] and "decline" in r.json()["detail"]
-    # withdrawing that run lets the others be fitted
+    assert r.status_code == 200, r.text
+    m = r.json()
+    assert m["n_measurements"] == 3 and len(m["runs"]) == 4
+    (excluded,) = m["excluded_runs"]
+    assert excluded["run_uid"] == flat["run_uid"]
+    assert "no measurable decline over 7 d" in excluded["reason"]
+    assert "less than 10% loss" in excluded["reason"]  # a rising series has no regression bound
+    diag = next(d for d in m["runs"] if d["run_uid"] == flat["run_uid"])
+    assert diag["status"] == "excluded" and diag["k_per_s"] is None
+    # 10 % loss over 7 d: k = -ln(0.9) / 7 d (the documented rule)
+    assert diag["k_upper_bound_per_s"] == pytest.approx(-math.log(0.9) / (7 * 86400.0), rel=1e-12)
+    assert all(d["status"] == "fitted" for d in m["runs"] if d["run_uid"] != flat["run_uid"])
+    assert any(flat["run_uid"] in f and "left out" in f for f in m["flags"])
+    pred = client.post(f"/v1/substances/{sid}/predictions",
+                       json={"conditions": [{"temperature_C": 20.0, "pH": 7.0}]}).json()
+    assert [e["run_uid"] for e in pred["excluded_runs"]] == [flat["run_uid"]]
+    # the stored run is untouched
+    stored = client.get(f"/v1/runs/{flat['run_uid']}").json()
+    assert stored["status"] == "current" and stored["version"] == 1
+    # withdrawing that run gives the same surface, now without exclusions
     client.post(f"/v1/runs/{flat['run_uid']}/withdraw", json={"reason": "no decline (invented)"})
-    assert client.get(f"/v1/substances/{sid}/model").status_code == 200
+    r2 = client.get(f"/v1/substances/{sid}/model")
+    assert r2.status_code == 200 and r2.json()["excluded_runs"] == []
+    assert r2.json()["parameters"] == m["parameters"]
+
+
+def test_too_few_runs_with_decline_is_422_naming_the_excluded(client):
+    sid, study = make_study(client)
+    client.post("/v1/runs", json=series_run_body(study, temperature_C=50.0, pH=4.0))
+    flat = client.post("/v1/runs", json=series_run_body(
+        study, temperature_C=20.0, pH=7.0, conc=[10.0, 10.05, 9.98, 10.02, 9.97])).json()
+    r = client.get(f"/v1/substances/{sid}/model")
+    assert r.status_code == 422
+    detail = r.json()["detail"]
+    assert "at least 2 runs with a measurable decline" in detail and flat["run_uid"] in detail
+
+
+def test_noisy_flat_run_bound_from_regression(client):
+    sid, study = make_study(client)
+    for t, p in ((30.0, 4.0), (50.0, 4.0), (50.0, 9.0)):
+        client.post("/v1/runs", json=series_run_body(study, temperature_C=t, pH=p))
+    flat = client.post("/v1/runs", json=series_run_body(
+        study, temperature_C=20.0, pH=7.0, conc=[10.0, 10.05, 9.98, 10.02, 9.97])).json()
+    m = client.get(f"/v1/substances/{sid}/model").json()
+    diag = next(d for d in m["runs"] if d["run_uid"] == flat["run_uid"])
+    assert diag["status"] == "excluded"
+    assert "upper confidence bound" in diag["k_upper_bound_basis"]
+    assert diag["k_upper_bound_per_s"] > 0
+    assert diag["dt50_lower_bound_s"] == pytest.approx(math.log(2) / diag["k_upper_bound_per_s"], rel=1e-12)
