@@ -14,7 +14,7 @@ from typing import Any
 import numpy as np
 import pytest
 
-hypothesis = pytest.importorskip("hypothesis")
+import hypothesis  # noqa: F401  (test extra)
 from hypothesis import HealthCheck, Phase, given, settings  # noqa: E402
 from hypothesis import strategies as st  # noqa: E402
 
@@ -39,17 +39,9 @@ IONIC = st.one_of(st.just(0.0), st.floats(-0.1, 1.0), ANY)
 SMALL_ARRAYS = st.lists(st.one_of(st.floats(-1e3, 1e3), ANY), min_size=0, max_size=5)
 
 
-def _optional_module(name: str):
-    """Import a sibling module if it exists and imports; None otherwise."""
-    try:
-        return importlib.import_module(name)
-    except ImportError:
-        return None
-
-
-series = _optional_module("kinetics.series")
-surface = _optional_module("kinetics.surface")
-prediction = _optional_module("kinetics.prediction")
+series = importlib.import_module("kinetics.series")
+surface = importlib.import_module("kinetics.surface")
+prediction = importlib.import_module("kinetics.prediction")
 
 
 def _assert_finite(value: Any, where: str = "result", depth: int = 0) -> None:
@@ -213,7 +205,6 @@ SERIES_TIMES = st.lists(st.one_of(st.floats(0.0, 400.0), ANY), min_size=0, max_s
 SERIES_CONC = st.lists(st.one_of(st.floats(0.0, 120.0), ANY), min_size=0, max_size=10)
 
 
-@pytest.mark.skipif(series is None, reason="kinetics.series not available")
 @SLOW
 @given(time=SERIES_TIMES, conc=SERIES_CONC,
        model=st.sampled_from(("SFO", "FOMC", "DFOP", "HS", "XYZ")),
@@ -238,13 +229,6 @@ def declining_series(draw):
     return times, conc
 
 
-@pytest.mark.skipif(series is None, reason="kinetics.series not available")
-@pytest.mark.xfail(
-    reason="known defect in kinetics.series: nearly coincident early sampling times "
-    "(e.g. 0 and 1e-300 d) make the start-value polyfit or the Gauss-Newton step raise "
-    "numpy LinAlgError, or emit RuntimeWarnings, instead of a KineticsError",
-    strict=False,
-)
 @SLOW
 @given(data=declining_series(), model=st.sampled_from(("SFO", "FOMC", "DFOP", "HS")),
        error_model=st.sampled_from(("constant", "proportional")))
@@ -257,8 +241,6 @@ def test_fit_series_declines(data, model, error_model):
         _finite_or_kinetics_error(fit.interval, 0.9)
 
 
-@pytest.mark.skipif(series is None or not hasattr(series, "fit_sfo_batch"),
-                    reason="kinetics.series.fit_sfo_batch not available")
 @SLOW
 @given(batch=st.lists(st.one_of(declining_series(), st.tuples(SERIES_TIMES, SERIES_CONC)),
                       min_size=0, max_size=4),
@@ -294,7 +276,6 @@ def _build_runs(raw):
     return runs
 
 
-@pytest.mark.skipif(surface is None, reason="kinetics.surface not available")
 @SLOW
 @given(raw=rate_measurements(), model=st.sampled_from(("arrhenius", "eyring", "linear")))
 def test_fit_surface(raw, model):
@@ -327,8 +308,6 @@ def consistent_design(draw):
     return runs
 
 
-@pytest.mark.skipif(surface is None or prediction is None,
-                    reason="kinetics.surface / kinetics.prediction not available")
 @SLOW
 @given(runs=consistent_design(), t=st.one_of(st.floats(273.15, 318.15), TEMPERATURE),
        ph=st.one_of(st.floats(0.0, 14.0), PH), s=SALINITY, i=IONIC,
