@@ -1,7 +1,8 @@
 """Fuzzing: schemathesis requests generated from the service's own OpenAPI schema.
 
 Every operation gets schema-valid (positive) and schema-violating (negative) requests,
-sent with a valid admin key to an app holding the invented demo scenario. Every
+sent with a valid admin key to an app holding the invented demo scenario, on SQLite and
+(when FIELDRATE_TEST_DATABASE_URL is set) PostgreSQL. Every
 response must be below 500 and conform to the schema (documented status code, content
 type and body schema). The total number of requests is at least 2,000; the figure is
 printed.
@@ -38,8 +39,8 @@ CHECKS = [not_a_server_error, status_code_conformance, content_type_conformance,
           response_schema_conformance]
 
 
-def test_generated_requests_get_no_5xx_and_conform_to_the_schema(tmp_path):
-    url = f"sqlite:///{tmp_path / 'fuzz.db'}"
+def test_generated_requests_get_no_5xx_and_conform_to_the_schema(db_url):
+    url = db_url
     upgrade_head(url)
     settings_ = Settings(database_url=url, run_migrations_on_startup=False)
     load_demo(settings_)
@@ -87,6 +88,7 @@ def test_generated_requests_get_no_5xx_and_conform_to_the_schema(tmp_path):
 
     total = sum(counts.values())
     server_errors = sum(n for code, n in statuses.items() if code >= 500)
+    app.state.engine.dispose()
     print(f"fuzzed requests: {total} over {len(counts)} operations; status codes "
           f"{dict(sorted(statuses.items()))}; 5xx: {server_errors}")
     assert server_errors == 0
