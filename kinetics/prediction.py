@@ -391,7 +391,7 @@ def predict(
     k_ci_lo, k_ci_hi = np.exp(ci_lo), np.exp(ci_hi)
     k_pi_lo, k_pi_hi = np.exp(pi_lo), np.exp(pi_hi)
     names = np.array(surface.pathways)
-    dominant = names[np.argmax(w, axis=1)]
+    dominant = names[_argmax_columns(w)]
 
     def out(a: np.ndarray) -> np.ndarray:
         return _readonly(a, shape)
@@ -428,6 +428,22 @@ def predict(
         residual_scale=rs,
         caution=CAUTION_TEXT,
     )
+
+
+def _argmax_columns(w: np.ndarray) -> np.ndarray:
+    """Index of the largest column of each row, the first on ties (as numpy.argmax).
+
+    One comparison per column over contiguous columns; argmax along a short
+    trailing axis walks the rows one by one.
+    """
+    best = w[:, 0].copy()
+    idx = np.zeros(w.shape[0], dtype=np.intp)
+    for j in range(1, w.shape[1]):
+        col = w[:, j]
+        better = col > best
+        idx[better] = j
+        np.maximum(best, col, out=best)
+    return idx
 
 
 def _quadratic_rows(jac: np.ndarray, cov: np.ndarray) -> np.ndarray:
