@@ -281,10 +281,12 @@ class RateMeasurement:
         object.__setattr__(self, "label", label)
         where = f" (run {label!r})" if label else ""
         t = _finite_float(self.temperature_K, "temperature_K", label)
-        try:
-            units.validate_temperature_K(t)
-        except InputError as exc:
-            raise InputError(f"{exc}{where}") from None
+        if not units.LIQUID_WATER_MIN_K <= t <= units.LIQUID_WATER_MAX_K:
+            # outside the liquid range: let the unit helper word the error
+            try:
+                units.validate_temperature_K(t)
+            except InputError as exc:
+                raise InputError(f"{exc}{where}") from None
         ph = _finite_float(self.pH, "pH", label)
         if not units.PH_MIN <= ph <= units.PH_MAX:
             raise InputError(f"pH must lie between 0 and 14{where}, got {ph!r}")
