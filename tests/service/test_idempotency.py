@@ -16,7 +16,6 @@ with warnings.catch_warnings():
 
 from service.config import Settings
 from service.idempotency import REPLAYED_HEADER, request_fingerprint
-from service.main import create_app
 from service.models import IdempotencyRecord, Run, Study, utcnow
 from service.security import issue_key
 from service_helpers import make_study, series_run_body, study_body

@@ -235,3 +235,24 @@ def test_openapi_declares_both_key_headers(client):
     assert schemes["ApiKeyHeader"]["name"] == "X-API-Key"
     assert "401" in schema["paths"]["/v1/runs"]["post"]["responses"]
     assert "403" in schema["paths"]["/v1/runs"]["post"]["responses"]
+
+
+def test_serve_demo_prints_a_working_admin_key(db_url, monkeypatch, capsys):
+    import uvicorn
+
+    served = []
+    # stand in for the blocking server loop; everything before it runs for real
+    monkeypatch.setattr(uvicorn, "run", lambda app, **kw: served.append((app, kw)))
+    monkeypatch.setenv("FIELDRATE_DATABASE_URL", db_url)
+    assert cli_main(["serve", "--demo", "--port", "8765"]) == 0
+    out = capsys.readouterr().out
+    line = next(l for l in out.splitlines() if l.startswith("demo API key"))
+    secret = line.rsplit(": ", 1)[1]
+    assert secret.startswith(KEY_PREFIX)
+    app = served[0][0]
+    with TestClient(app, raise_server_exceptions=False) as c:
+        r = c.post("/v1/substances", json=substance_body("Postable (invented)"),
+                   headers=_bearer(secret))
+        assert r.status_code == 201
+        assert r.json()["created_by"] == "demo key (fieldrate serve --demo)"
+    app.state.engine.dispose()
