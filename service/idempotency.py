@@ -41,14 +41,14 @@ from typing import Any, Optional
 from fastapi import FastAPI
 from fastapi.routing import APIRoute
 from sqlalchemy import delete, insert, select, update
-from sqlalchemy.exc import IntegrityError
+from sqlalchemy.exc import IntegrityError, OperationalError
 from sqlalchemy.orm import Session, sessionmaker
 from starlette.concurrency import run_in_threadpool
 from starlette.datastructures import Headers
 
 from service.db import WRITE_OPTION
 from service.models import IdempotencyRecord, utcnow
-from service.security import SCOPE_KEY
+from service.security import SCOPE_KEY, send_unavailable
 
 __all__ = [
     "HEADER",
@@ -385,6 +385,25 @@ class IdempotencyMiddleware:
         return any(pattern.match(path) for pattern in self._patterns)
 
     async def __call__(self, scope, receive, send):
+        answered = False
+
+        async def tracking_send(message):
+            nonlocal answered
+            if message["type"] == "http.response.start":
+                answered = True
+            await send(message)
+
+        try:
+            await self._handle(scope, receive, tracking_send)
+        except OperationalError:
+            # the database failed in a look-up of this middleware (the application's own
+            # failures are answered by its handlers): nothing was stored
+            if not answered:
+                await send_unavailable(send)
+            else:
+                raise
+
+    async def _handle(self, scope, receive, send):
         if scope["type"] != "http" or scope.get("method") != "POST":
             await self.app(scope, receive, send)
             return

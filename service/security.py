@@ -63,6 +63,7 @@ __all__ = [
     "principal_for_request",
     "KeyCheckMiddleware",
     "install_key_check",
+    "send_unavailable",
     "require_scope",
 ]
 
@@ -348,16 +349,37 @@ class KeyCheckMiddleware:
             from starlette.concurrency import run_in_threadpool
             from starlette.datastructures import Headers
 
+            from sqlalchemy.exc import OperationalError
+
             secret = credential_from_headers(Headers(scope=scope))
             if secret is None:
                 scope[SCOPE_KEY] = KeyCheck(presented=False, key=None)
             else:
                 app = scope["app"]
-                scope[SCOPE_KEY] = await run_in_threadpool(
-                    _check_with_factory, app.state.session_factory, secret,
-                    app.state.settings.api_key_pepper,
-                )
+                try:
+                    scope[SCOPE_KEY] = await run_in_threadpool(
+                        _check_with_factory, app.state.session_factory, secret,
+                        app.state.settings.api_key_pepper,
+                    )
+                except OperationalError:
+                    await send_unavailable(send)
+                    return
         await self.app(scope, receive, send)
+
+
+async def send_unavailable(send) -> None:
+    """Answer 503 (database busy or unreachable) from an ASGI middleware."""
+    import json
+
+    body = json.dumps({
+        "error": "unavailable",
+        "detail": "the database is busy or unreachable; nothing was stored - retry shortly",
+    }).encode()
+    await send({"type": "http.response.start", "status": 503, "headers": [
+        (b"content-type", b"application/json"), (b"content-length", str(len(body)).encode()),
+        (b"retry-after", b"1"),
+    ]})
+    await send({"type": "http.response.body", "body": body})
 
 
 def install_key_check(app) -> None:

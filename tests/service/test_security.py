@@ -256,3 +256,16 @@ def test_serve_demo_prints_a_working_admin_key(db_url, monkeypatch, capsys):
         assert r.status_code == 201
         assert r.json()["created_by"] == "demo key (fieldrate serve --demo)"
     app.state.engine.dispose()
+
+
+def test_an_unreachable_database_is_503_not_500():
+    # nothing listens on port 1 of the loopback interface
+    url = "postgresql+psycopg://postgres@127.0.0.1:1/none?connect_timeout=2"
+    app = create_app(Settings(database_url=url, run_migrations_on_startup=False))
+    with TestClient(app, raise_server_exceptions=False) as c:
+        for method, path in (("GET", "/v1/substances"), ("POST", "/v1/runs")):
+            r = c.request(method, path, json={}, headers={
+                **_bearer("frk_" + "z" * 43), "Idempotency-Key": "unreachable-1"})
+            assert r.status_code == 503, r.text
+            assert r.json()["error"] == "unavailable" and r.headers["retry-after"] == "1"
+    app.state.engine.dispose()
