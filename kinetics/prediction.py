@@ -78,7 +78,6 @@ from kinetics.surface import (
     SurfaceFit,
     _check_level,
     _conditions,
-    _logsumexp,
     _logsumexp_terms,
     _ln_concentrations,
 )
@@ -321,7 +320,7 @@ def predict(
     T, ph, ionic, sal, shape = _conditions(temperature_K, pH, ionic_strength_M, salinity)
     lnc = _ln_concentrations(T, ph, ionic, sal)
     terms, _ = surface._terms_at(T, lnc, None)
-    lnk = _logsumexp(terms, axis=1)
+    lnk = _logsumexp_rows(terms)
     w = np.exp(terms - lnk[:, None])
 
     # delta method: se^2 = J Sigma J^T, row by row
@@ -381,7 +380,7 @@ def predict(
             T[outside], ph[outside], lnc[outside], Tc, pc, ionic[outside], sal[outside]
         )
         terms_c, _ = surface._terms_at(Tc, lnc_c, None)
-        extrap[outside] = np.abs(lnk[outside] - _logsumexp(terms_c, axis=1))
+        extrap[outside] = np.abs(lnk[outside] - _logsumexp_rows(terms_c))
 
     k = np.exp(lnk)
     # interval bounds beyond 1e+-300 (only for nearly uncharacterised surfaces with
@@ -428,6 +427,15 @@ def predict(
         residual_scale=rs,
         caution=CAUTION_TEXT,
     )
+
+
+def _logsumexp_rows(terms: np.ndarray) -> np.ndarray:
+    """ln of the sum of exp over the (few) pathway columns of ``terms`` (n, m).
+
+    Column by column (:func:`kinetics.surface._logsumexp_terms`); a reduction
+    along the short trailing axis walks the rows one by one.
+    """
+    return _logsumexp_terms([terms[:, j] for j in range(terms.shape[1])])
 
 
 def _argmax_columns(w: np.ndarray) -> np.ndarray:
