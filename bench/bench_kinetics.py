@@ -8,6 +8,7 @@ machines are shared and noisy. Nothing here asserts: it prints figures and ratio
 from __future__ import annotations
 
 import argparse
+import json
 import statistics
 import sys
 import time
@@ -27,31 +28,67 @@ R = GAS_CONSTANT_J_PER_MOL_K
 PATHWAYS = ("acid", "neutral", "base")
 
 
+#: Clock of every figure: wall time by default; ``--clock cpu`` uses the process CPU time
+#: (all threads), which on a machine shared with other jobs leaves out the time spent
+#: waiting for a core.
+CLOCK = {"wall": time.perf_counter, "cpu": time.process_time}
+_clock = CLOCK["wall"]
+
+
 def median_time(fn, repeat=7, warmup=1):
-    """Median wall time [s] of ``fn()`` over ``repeat`` calls after ``warmup`` calls."""
+    """Median time [s] of ``fn()`` over ``repeat`` calls after ``warmup`` calls."""
     for _ in range(warmup):
         fn()
     times = []
     for _ in range(repeat):
-        t0 = time.perf_counter()
+        t0 = _clock()
         fn()
-        times.append(time.perf_counter() - t0)
+        times.append(_clock() - t0)
     return statistics.median(times)
 
 
+def median_times(fns, repeat=7, warmup=1):
+    """Median times [s] of several functions, called in turn within each repetition.
+
+    Interleaving puts every function under the same passing load of a shared machine,
+    so their ratio is steadier than that of two separately timed series.
+    """
+    for _ in range(warmup):
+        for fn in fns:
+            fn()
+    times = [[] for _ in fns]
+    for _ in range(repeat):
+        for fn, acc in zip(fns, times):
+            t0 = _clock()
+            fn()
+            acc.append(_clock() - t0)
+    return [statistics.median(t) for t in times]
+
+
 # --------------------------------------------------------------------------- fitting
-def fieldrate_two_stage(runs):
+def measurements(runs, fits, *, with_dof=False):
+    if with_dof:
+        return [RateMeasurement.from_series_fit(f, temperature_K=r["temperature_K"], pH=r["pH"])
+                for r, f in zip(runs, fits)]
+    return [RateMeasurement(temperature_K=r["temperature_K"], pH=r["pH"], k_per_s=f.k_per_s,
+                            se_ln_k=f.se_ln_k)
+            for r, f in zip(runs, fits)]
+
+
+def fieldrate_two_stage(runs, pathways=PATHWAYS, with_dof=False):
+    """Series fitted together (batched SFO), then the rate surface."""
     fits = kinetics.fit_sfo_batch([(r["time_s"], r["concentration"]) for r in runs], time_unit="s")
-    meas = [
-        RateMeasurement(temperature_K=r["temperature_K"], pH=r["pH"], k_per_s=f.k_per_s,
-                        se_ln_k=f.se_ln_k)
-        for r, f in zip(runs, fits)
-    ]
-    return fit_surface(meas, pathways=PATHWAYS)
+    return fit_surface(measurements(runs, fits, with_dof=with_dof), pathways=pathways)
 
 
-def lmfit_two_stage(runs):
-    """The same two-stage fit written the straightforward way with lmfit."""
+def lmfit_two_stage(runs, tau2=0.0):
+    """The same two-stage fit written the straightforward way with lmfit.
+
+    An lmfit Model per series for SFO, then an lmfit Model for the surface on ln k with
+    weights 1/SE. With ``tau2`` > 0 the weights are 1/sqrt(SE^2 + tau2): the weights of
+    fieldrate's statistical model at its between-run variance, so that both fits solve the
+    same weighted least-squares problem.
+    """
     import lmfit
 
     sfo = lmfit.Model(lambda t, c0, k: c0 * np.exp(-k * t), independent_vars=["t"])
@@ -77,45 +114,66 @@ def lmfit_two_stage(runs):
     model = lmfit.Model(surface, independent_vars=["T"])
     params = model.make_params(lnA=np.log(1e-3), eA=70.0, lnN=np.log(1e-8), eN=80.0,
                                lnB=np.log(1e-2), eB=60.0)
-    res = model.fit(ln_k, params, T=temp, weights=1.0 / se)
+    res = model.fit(ln_k, params, T=temp, weights=1.0 / np.sqrt(se**2 + tau2))
     v = res.params
     return np.array([v["lnA"].value, v["eA"].value * 1e3, v["lnN"].value, v["eN"].value * 1e3,
                      v["lnB"].value, v["eB"].value * 1e3])
 
 
+def rel_diff(a, b):
+    return float(np.max(np.abs(a - b) / np.abs(b)))
+
+
 def bench_fitting(sizes):
     print("\n[3] Surface fit from raw series (10 points each), fixed acid+neutral+base, Arrhenius")
-    print(f"{'runs':>6} {'fieldrate ms':>13} {'lmfit ms':>10} {'speed-up':>9} {'max rel diff':>13}")
+    print("    fieldrate: fit_sfo_batch + RateMeasurement + fit_surface (Paule-Mandel tau^2,")
+    print("    Knapp-Hartung q); lmfit: one Model per series, then the surface with weights")
+    print("    1/SE. Agreement 'same weights': lmfit given fieldrate's final weights")
+    print("    1/sqrt(SE^2 + tau^2) (identical problem); 'plain 1/SE': lmfit as written (differs")
+    print("    by the statistical model wherever tau^2 > 0).")
+    print(f"{'runs':>6} {'fieldrate ms':>13} {'lmfit ms':>10} {'speed-up':>9} "
+          f"{'tau^2':>9} {'same weights':>13} {'plain 1/SE':>11}")
     for n in sizes:
         runs = synthetic_runs(n)
         ours = fieldrate_two_stage(runs)
+        tau2 = ours.between_run_sd_ln_k ** 2
+        rep_lm = 3 if n > 100 else 7
         try:
-            theirs = lmfit_two_stage(runs)
-            diff = np.max(np.abs(ours.estimates - theirs) / np.abs(theirs))
-            t_lm = median_time(lambda: lmfit_two_stage(runs), repeat=3)
+            same = rel_diff(ours.estimates, lmfit_two_stage(runs, tau2))
+            plain = rel_diff(ours.estimates, lmfit_two_stage(runs))
+            t_ours, t_lm = median_times([lambda: fieldrate_two_stage(runs),
+                                         lambda: lmfit_two_stage(runs)], repeat=rep_lm)
         except ImportError:
-            diff, t_lm = float("nan"), float("nan")
-        t_ours = median_time(lambda: fieldrate_two_stage(runs), repeat=5)
-        print(f"{n:>6} {t_ours * 1e3:>13.2f} {t_lm * 1e3:>10.2f} {t_lm / t_ours:>8.1f}x {diff:>13.2e}")
+            same = plain = t_lm = float("nan")
+            t_ours = median_time(lambda: fieldrate_two_stage(runs), repeat=7)
+        print(f"{n:>6} {t_ours * 1e3:>13.2f} {t_lm * 1e3:>10.2f} {t_lm / t_ours:>8.1f}x "
+              f"{tau2:>9.2e} {same:>13.1e} {plain:>11.1e}")
     runs = synthetic_runs(50)
-    auto = median_time(lambda: kinetics.fit_surface(
-        [RateMeasurement(temperature_K=r["temperature_K"], pH=r["pH"], k_per_s=f.k_per_s,
-                         se_ln_k=f.se_ln_k)
-         for r, f in zip(runs, kinetics.fit_sfo_batch(
-             [(r["time_s"], r["concentration"]) for r in runs], time_unit="s"))]), repeat=3)
-    print(f"  with pathway selection by AICc (all subsets), 50 runs: {auto * 1e3:.1f} ms")
+    t_fixed = median_time(lambda: fieldrate_two_stage(runs), repeat=7)
+    t_auto = median_time(lambda: fieldrate_two_stage(runs, pathways="auto"), repeat=5)
+    t_dof = median_time(lambda: fieldrate_two_stage(runs, pathways="auto", with_dof=True),
+                        repeat=5)
+    print(f"  50 runs: fixed {t_fixed * 1e3:.1f} ms; with pathway selection by AICc (all 7 "
+          f"subsets) {t_auto * 1e3:.1f} ms;\n  the same with moderated SEs (se_dof) "
+          f"{t_dof * 1e3:.1f} ms")
     fit = fieldrate_two_stage(runs)
     blob = fit.to_dict()
     t_restore = median_time(lambda: kinetics.SurfaceFit.from_dict(blob), repeat=20)
-    print(f"  restoring a cached fit (SurfaceFit.from_dict): {t_restore * 1e3:.3f} ms")
+    t_json = median_time(lambda: kinetics.SurfaceFit.from_dict(json.loads(json.dumps(blob))),
+                         repeat=20)
+    print(f"  cached fit reuse, 50 runs: SurfaceFit.from_dict {t_restore * 1e3:.3f} ms "
+          f"(from JSON text {t_json * 1e3:.3f} ms); target < 2 ms")
 
 
 # --------------------------------------------------------------------------- prediction
 def plain_numpy_delta(theta, cov, t_K, ph, tq, sigma_run):
-    """The three-pathway formula with its delta-method interval, written directly."""
-    pkw = water.pKw(t_K)
-    ln_h = -ph * np.log(10.0)
-    ln_oh = (ph - pkw) * np.log(10.0)
+    """The three-pathway formula with its delta-method interval, written directly.
+
+    Same water chemistry as fieldrate (kinetics.water.hydronium_hydroxide_molar), so the
+    comparison measures the kinetics code, not a simpler ion product.
+    """
+    h, oh = water.hydronium_hydroxide_molar(ph, t_K)
+    ln_h, ln_oh = np.log(h), np.log(oh)
     inv = 1.0 / t_K - 1.0 / T_REF_K
     a = theta[0] - theta[1] / R * inv + ln_h
     n = theta[2] - theta[3] / R * inv
@@ -140,43 +198,83 @@ def conditions(n, seed=7):
     return rng.uniform(275.0, 308.0, n), rng.uniform(5.0, 9.5, n)
 
 
-def bench_prediction(sizes):
+def broadcast_ln_k_draws(fit, t_K, ph, draws):
+    """ln k of many parameter sets by plain broadcasting, (n_draws, 3, n) terms at once."""
+    h, oh = water.hydronium_hydroxide_molar(ph, t_K)
+    lnc = np.stack([np.log(h), np.zeros_like(h), np.log(oh)])
+    u = T_REF_K / t_K - 1.0
+    a, e = draws[:, 0::2], draws[:, 1::2] / (R * T_REF_K)
+    terms = a[:, :, None] + lnc[None, :, :] - e[:, :, None] * u[None, None, :]
+    top = terms.max(axis=1)
+    return top + np.log(np.exp(terms - top[:, None, :]).sum(axis=1))
+
+
+def bench_prediction(sizes, mc_sizes):
     from scipy import stats
 
     fit = fieldrate_two_stage(synthetic_runs(27))
     tq = stats.t.ppf(0.975, fit.dof)
-    print("\n[2] Bulk prediction, delta-method intervals (kinetics part only)")
-    print(f"{'conditions':>11} {'predict ms':>11} {'plain numpy ms':>15} {'ratio':>6} {'conditions/s':>13}")
+    print("\n[2] Bulk prediction, delta-method intervals (kinetics part only); reference: the")
+    print("    same formula and interval in plain numpy with the same water chemistry")
+    print(f"{'conditions':>11} {'predict ms':>11} {'plain numpy ms':>15} {'ratio':>6} "
+          f"{'conditions/s':>13}")
     for n in sizes:
         t_K, ph = conditions(n)
-        t_pred = median_time(lambda: kinetics.predict(fit, t_K, ph), repeat=5)
-        t_np = median_time(lambda: plain_numpy_delta(fit.estimates, fit.covariance, t_K, ph, tq,
-                                                     fit.residual_scale), repeat=5)
+        rep = 5 if n >= 1_000_000 else 11
+        t_pred, t_np = median_times([
+            lambda: kinetics.predict(fit, t_K, ph),
+            lambda: plain_numpy_delta(fit.estimates, fit.covariance, t_K, ph, tq,
+                                      fit.residual_scale)], repeat=rep)
         print(f"{n:>11} {t_pred * 1e3:>11.2f} {t_np * 1e3:>15.2f} {t_pred / t_np:>6.2f} "
               f"{n / t_pred:>13.3g}")
     t_K, ph = conditions(1000)
     pred = kinetics.predict(fit, t_K, ph)
     k, ci, pi, _ = plain_numpy_delta(fit.estimates, fit.covariance, t_K, ph, tq, fit.residual_scale)
-    print(f"  agreement with plain numpy: max rel diff k {np.max(np.abs(pred.k_per_s / k - 1)):.1e}, "
-          f"CI low {np.max(np.abs(pred.k_ci_low_per_s / ci[0] - 1)):.1e}")
+    d_k = np.max(np.abs(pred.k_per_s / k - 1))
+    d_ci = np.max(np.abs(pred.k_ci_low_per_s / ci[0] - 1))
+    d_pi = np.max(np.abs(pred.k_pi_high_per_s / pi[1] - 1))
+    print(f"  agreement with plain numpy: max rel diff k {d_k:.1e}, CI low {d_ci:.1e}, "
+          f"PI high {d_pi:.1e}")
 
-    print("\n[6] Monte Carlo intervals: 10,000 parameter draws")
-    for n in (100, 1000, 10000):
+    print("\n[6] Monte Carlo intervals: 10,000 multivariate-t parameter draws (target < 0.3 s")
+    print("    for 1,000 conditions)")
+    for n in mc_sizes:
         t_K, ph = conditions(n)
         t_mc = median_time(lambda: kinetics.predict(fit, t_K, ph, method="montecarlo",
-                                                    n_draws=10000, seed=1), repeat=3)
+                                                    n_draws=10000, seed=1), repeat=5)
         print(f"  {n:>6} conditions: {t_mc * 1e3:8.1f} ms")
+
+    print("\n    SurfaceFit.ln_k(..., parameters=draws), 10,000 draws (used by scenarios): one")
+    print("    outer product per pathway vs plain broadcasting of the (draws, pathways,")
+    print("    conditions) terms with a max-shifted log-sum-exp")
+    draws = fit.sample_parameters(10000, np.random.default_rng(3))
+    for n in mc_sizes:
+        t_K, ph = conditions(n)
+        t_ours, t_bc = median_times([lambda: fit.ln_k(t_K, ph, parameters=draws),
+                                     lambda: broadcast_ln_k_draws(fit, t_K, ph, draws)],
+                                    repeat=3)
+        diff = np.max(np.abs(fit.ln_k(t_K, ph, parameters=draws)
+                             - broadcast_ln_k_draws(fit, t_K, ph, draws)))
+        print(f"  {n:>6} conditions: {t_ours * 1e3:8.1f} ms (broadcasting {t_bc * 1e3:8.1f} ms, "
+              f"max abs diff in ln k {diff:.1e})")
 
 
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__)
     parser.add_argument("--quick", action="store_true", help="smaller sizes, fewer repetitions")
+    parser.add_argument("--clock", choices=tuple(CLOCK), default="wall",
+                        help="wall time (default) or process CPU time")
     args = parser.parse_args(argv)
-    print(f"fieldrate kinetics benchmarks (numpy {np.__version__})")
-    fit_sizes = (10, 50, 500) if not args.quick else (10, 50)
-    pred_sizes = (1_000, 10_000, 100_000, 1_000_000) if not args.quick else (1_000, 100_000)
+    global _clock
+    _clock = CLOCK[args.clock]
+    print(f"fieldrate kinetics benchmarks (numpy {np.__version__}, {args.clock} clock, "
+          f"medians of repetitions)")
+    fit_sizes = (10, 50, 500)
+    pred_sizes = (1_000, 10_000, 100_000, 1_000_000) if not args.quick else (1_000, 10_000,
+                                                                               100_000)
+    mc_sizes = (100, 1000, 10000) if not args.quick else (100, 1000)
     bench_fitting(fit_sizes)
-    bench_prediction(pred_sizes)
+    bench_prediction(pred_sizes, mc_sizes)
 
 
 if __name__ == "__main__":
