@@ -1308,21 +1308,30 @@ class _Candidate:
         hi = np.tile([_LN_K_BOUNDS[1], _E_BOUNDS[1]], self.m)
         self.bounds = (lo, hi)
         self.lnc = design.lnc[:, self.idx]
+        # constant parts of the model, ln c + Eyring offset, and -u as a column
+        self._base = self.lnc + design.offset[:, None]
+        self._u_col = design.u[:, None]
+        self._neg_u_col = -self._u_col
+        self._jac_single = np.column_stack([np.ones(design.n), -design.u])
+        self._jac_single.setflags(write=False)
         self.prior_rows = np.zeros((self.prior_pos.size, self.p))
         self.prior_rows[np.arange(self.prior_pos.size), self.prior_pos] = 1.0 / self.prior_sd
 
     def model(self, z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """ln k of every run and its Jacobian in the internal parameters."""
         a, e = z[0::2], z[1::2]
-        d = self.design
-        terms = a + self.lnc - d.u[:, None] * e + d.offset[:, None]
+        terms = self._base + a - self._u_col * e
+        if self.m == 1:
+            # one pathway: linear in (a, e), constant Jacobian
+            return terms[:, 0], self._jac_single
         top = terms.max(axis=1)
         ex = np.exp(terms - top[:, None])
         tot = ex.sum(axis=1)
         lnk = top + np.log(tot)
         w = ex / tot[:, None]
-        jac = np.empty((d.n, self.p))
+        jac = np.empty((self.design.n, self.p))
         jac[:, 0::2] = w
-        jac[:, 1::2] = -w * d.u[:, None]
+        jac[:, 1::2] = w * self._neg_u_col
         return lnk, jac
 
     def start(self) -> np.ndarray:
@@ -1385,19 +1394,22 @@ class _Candidate:
         evals = 1
         a = j.T @ j
         g = j.T @ r
+        diag = np.arange(self.p) * (self.p + 1)
         while evals < budget:
-            scale = np.maximum(scale, np.diag(a))
-            if not (np.all(np.isfinite(a)) and np.all(np.isfinite(g))):
+            if not math.isfinite(float(a.sum()) + float(g.sum())):
                 return None
+            np.maximum(scale, a.flat[diag], out=scale)
             floor = np.where(scale > 0.0, scale, 1.0)
+            damped = a.copy()
+            damped.flat[diag] += lam * floor
             try:
-                step = np.linalg.solve(a + np.diag(lam * floor), -g)
+                step = np.linalg.solve(damped, -g)
             except np.linalg.LinAlgError:
                 lam *= nu
                 nu *= 2.0
                 continue
             predicted = -float(2.0 * (g @ step) + step @ (a @ step))
-            small = bool(np.all(np.abs(step) <= 1e-12 * (1.0 + np.abs(z))))
+            small = bool((np.abs(step) - 1e-12 * np.abs(z)).max() <= 1e-12)
             z_new = z + step
             r_new, j_new = self._weighted(z_new, sig_inv)
             evals += 1
