@@ -15,7 +15,7 @@ import uuid
 from collections.abc import Sequence
 from typing import Any, Optional
 
-from sqlalchemy import func, or_, select
+from sqlalchemy import func, insert, or_, select
 from sqlalchemy.exc import IntegrityError
 from sqlalchemy.orm import Session, selectinload
 
@@ -58,6 +58,7 @@ __all__ = [
     "data_version",
     "data_version_of",
     "get_cached_fit",
+    "cached_fit_ref",
     "store_fit",
     "list_audit_events",
 ]
@@ -207,25 +208,27 @@ def _check_points(data: RunData, max_points: int, loc: list[Any]) -> None:
         )
 
 
-def _new_version(
+def _version_values(
     *,
     data: RunData,
     study: Study,
     run_uid: str,
     version: int,
     actor: str,
-    supersedes: Optional[Run] = None,
+    now: dt.datetime,
+    supersedes_id: Optional[int] = None,
     reason: Optional[str] = None,
-) -> Run:
+) -> tuple[dict[str, Any], list[dict[str, Any]]]:
+    """Column values of a new run version and of its observations (without ``run_id``)."""
     t_K = data.temperature_K_si
-    run = Run(
+    values: dict[str, Any] = dict(
         run_uid=run_uid,
         version=version,
         status="current",
         study_id=study.id,
         substance_id=study.substance_id,
         natural_key=natural_key(t_K, data.pH, data.replicate_label),
-        supersedes_id=supersedes.id if supersedes is not None else None,
+        supersedes_id=supersedes_id,
         reason=reason,
         temperature_K=t_K,
         pH=float(data.pH),
@@ -237,29 +240,49 @@ def _new_version(
         replicate_label=data.replicate_label.strip(),
         series_model=data.series_model,
         notes=data.notes,
-        created_at=utcnow(),
+        created_at=now,
         created_by=actor,
+        kind=None, time_unit_sent=None, concentration_unit_sent=None, concentration_unit=None,
+        loq=None, k_per_s=None, dt50_s=None, se_ln_k=None, rate_unit_sent=None,
     )
+    observations: list[dict[str, Any]] = []
     if data.series is not None:
         s = data.series
-        run.kind = "series"
-        run.time_unit_sent = s.time_unit
-        run.concentration_unit_sent = s.concentration_unit
-        run.concentration_unit = s.canonical_unit
-        run.loq = s.loq_canonical
+        values.update(
+            kind="series", time_unit_sent=s.time_unit, concentration_unit_sent=s.concentration_unit,
+            concentration_unit=s.canonical_unit, loq=s.loq_canonical,
+        )
         below = s.below_loq or [False] * len(s.time)
-        run.observations = [
-            Observation(position=i, time_s=float(t), concentration=float(c), below_loq=bool(b))
+        observations = [
+            {"position": i, "time_s": float(t), "concentration": float(c), "below_loq": bool(b)}
             for i, (t, c, b) in enumerate(zip(s.time_s, s.concentration_canonical, below))
         ]
     else:
         r = data.rate
         assert r is not None  # guaranteed by RunData validation
-        run.kind = "rate"
-        run.k_per_s = r.k_per_s
-        run.dt50_s = r.dt50_s
-        run.se_ln_k = r.se_ln_k
-        run.rate_unit_sent = r.k_unit if r.k is not None else r.dt50_unit
+        values.update(
+            kind="rate", k_per_s=r.k_per_s, dt50_s=r.dt50_s, se_ln_k=r.se_ln_k,
+            rate_unit_sent=r.k_unit if r.k is not None else r.dt50_unit,
+        )
+    return values, observations
+
+
+def _new_version(
+    *,
+    data: RunData,
+    study: Study,
+    run_uid: str,
+    version: int,
+    actor: str,
+    supersedes: Optional[Run] = None,
+    reason: Optional[str] = None,
+) -> Run:
+    values, observations = _version_values(
+        data=data, study=study, run_uid=run_uid, version=version, actor=actor, now=utcnow(),
+        supersedes_id=supersedes.id if supersedes is not None else None, reason=reason,
+    )
+    run = Run(**values)
+    run.observations = [Observation(**o) for o in observations]
     return run
 
 
@@ -321,8 +344,10 @@ def create_runs_batch(
     conflicts: list[dict[str, Any]] = []
     studies: dict[int, Study] = {}
     seen: dict[tuple[int, str], int] = {}
+    keys: list[Optional[str]] = []
     for i, data in enumerate(runs):
         loc = ["body", "runs", i]
+        keys.append(None)
         if data.series is not None and len(data.series.time) > max_points:
             problems.append({
                 "loc": loc + ["series", "time"],
@@ -350,31 +375,74 @@ def create_runs_batch(
             })
             continue
         seen[(data.study_id, key)] = i
-        other = _duplicate(session, study_id=data.study_id, key=key)
+        keys[i] = key
+    stored = _current_with_keys(session, seen)
+    for i, key in enumerate(keys):
+        other = stored.get((runs[i].study_id, key)) if key is not None else None
         if other is not None:
             conflicts.append({
-                "loc": loc, "msg": f"runs.{i}: " + _duplicate_message(key, other),
+                "loc": ["body", "runs", i], "msg": f"runs.{i}: " + _duplicate_message(key, other),
                 "type": "duplicate_run",
             })
     if problems:
-        raise ItemErrors(problems + conflicts, status_code=422)
+        raise ItemErrors(problems + sorted(conflicts, key=lambda c: c["loc"][2]), status_code=422)
     if conflicts:
-        raise ItemErrors(conflicts, status_code=409)
-    created = []
+        raise ItemErrors(sorted(conflicts, key=lambda c: c["loc"][2]), status_code=409)
+    if not runs:
+        return []
+    # bulk inserts (one statement per table, executed as multi-row inserts), all in the
+    # caller's transaction
+    now = utcnow()
+    run_rows, obs_rows = [], []
     for data in runs:
-        run = _new_version(
+        values, observations = _version_values(
             data=data, study=studies[data.study_id], run_uid=str(uuid.uuid4()), version=1,
-            actor=actor,
+            actor=actor, now=now,
         )
-        session.add(run)
-        created.append(run)
-    _flush_or_conflict(session)
-    for run in created:
-        record_audit(
-            session, actor=actor, entity="run", entity_id=run.run_uid, version=1,
-            action="create", reason="batch", substance_id=run.substance_id,
-        )
-    return created
+        run_rows.append(values)
+        obs_rows.append(observations)
+    try:
+        ids = session.scalars(
+            insert(Run).returning(Run.id, sort_by_parameter_order=True), run_rows
+        ).all()
+        flat = [
+            {**o, "run_id": run_id} for run_id, observations in zip(ids, obs_rows) for o in observations
+        ]
+        if flat:
+            session.execute(insert(Observation), flat)
+    except IntegrityError as exc:
+        raise Conflict(
+            "a run with the same study, temperature, pH and replicate label was stored at the "
+            "same moment; nothing was stored"
+        ) from exc
+    session.execute(insert(AuditEvent), [
+        {"at": now, "actor": actor, "entity": "run", "entity_id": r["run_uid"], "version": 1,
+         "action": "create", "reason": "batch", "substance_id": r["substance_id"]}
+        for r in run_rows
+    ])
+    created = session.scalars(
+        select(Run).where(Run.id.in_(ids)).options(selectinload(Run.observations)).order_by(Run.id)
+    ).all()
+    by_id = {r.id: r for r in created}
+    return [by_id[i] for i in ids]
+
+
+def _current_with_keys(session: Session, wanted: dict[tuple[int, str], int]) -> dict[tuple[int, str], Run]:
+    """The current runs holding any of the (study id, natural key) pairs (chunked queries)."""
+    by_study: dict[int, list[str]] = {}
+    for study_id, key in wanted:
+        by_study.setdefault(study_id, []).append(key)
+    found: dict[tuple[int, str], Run] = {}
+    for study_id, study_keys in by_study.items():
+        for start in range(0, len(study_keys), 500):
+            chunk = study_keys[start:start + 500]
+            for run in session.scalars(
+                select(Run).where(
+                    Run.study_id == study_id, Run.status == "current", Run.natural_key.in_(chunk)
+                )
+            ):
+                found[(study_id, run.natural_key)] = run
+    return found
 
 
 def _latest_version(session: Session, *, run_uid: str) -> Run:
@@ -565,6 +633,20 @@ def get_cached_fit(
             FitCache.options_key == options_key,
         )
     )
+
+
+def cached_fit_ref(
+    session: Session, *, substance_id: int, data_version: str, options_key: str
+) -> Optional[tuple[int, dt.datetime]]:
+    """Id and time of the stored fit for this key, without reading the fit itself."""
+    row = session.execute(
+        select(FitCache.id, FitCache.created_at).where(
+            FitCache.substance_id == substance_id,
+            FitCache.data_version == data_version,
+            FitCache.options_key == options_key,
+        )
+    ).first()
+    return None if row is None else (int(row[0]), row[1])
 
 
 def store_fit(

@@ -4,12 +4,21 @@ A cache entry is keyed by substance, data version (the set of current run versio
 fit options; a new, superseded or withdrawn run changes the data version, so the next
 request misses and refits. Fresh fits are stored and then read back from their JSON form,
 so the first answer and every later cached answer carry identical numbers.
+
+Each process also keeps the most recently used restored fits in memory (per database),
+keyed by the stored fit's row id and time as well as substance, data version and options.
+Every request still reads the data version and the id of the stored fit (two small
+indexed queries), so a new or withdrawn run, or another process's refit, is seen at once;
+only the JSON parsing and the rebuilding of the fit are saved.
 """
 
 from __future__ import annotations
 
 import datetime as dt
 import json
+import threading
+import weakref
+from collections import OrderedDict
 from dataclasses import dataclass
 
 from sqlalchemy.orm import Session, sessionmaker
@@ -50,6 +59,45 @@ def _restore(fit_json: str, diagnostics_json: str) -> FitResult:
     )
 
 
+#: restored fits kept in memory per database
+RESTORED_FITS_PER_DATABASE = 64
+
+
+class _RestoredFits:
+    """A thread-safe least-recently-used map: cache key -> (substance name, FitResult)."""
+
+    def __init__(self, maxsize: int) -> None:
+        self.maxsize = maxsize
+        self._items: OrderedDict[tuple, tuple[str, FitResult]] = OrderedDict()
+        self._lock = threading.Lock()
+
+    def get(self, key: tuple) -> tuple[str, FitResult] | None:
+        with self._lock:
+            value = self._items.get(key)
+            if value is not None:
+                self._items.move_to_end(key)
+            return value
+
+    def put(self, key: tuple, value: tuple[str, FitResult]) -> None:
+        with self._lock:
+            self._items[key] = value
+            self._items.move_to_end(key)
+            while len(self._items) > self.maxsize:
+                self._items.popitem(last=False)
+
+
+_RESTORED: "weakref.WeakKeyDictionary[sessionmaker, _RestoredFits]" = weakref.WeakKeyDictionary()
+_RESTORED_LOCK = threading.Lock()
+
+
+def _restored_fits(factory: sessionmaker[Session]) -> _RestoredFits:
+    with _RESTORED_LOCK:
+        cache = _RESTORED.get(factory)
+        if cache is None:
+            cache = _RESTORED[factory] = _RestoredFits(RESTORED_FITS_PER_DATABASE)
+        return cache
+
+
 def _check_as_of(as_of: dt.datetime) -> dt.datetime:
     """``as_of`` in UTC; refuse a time without zone or one in the future."""
     from kinetics.errors import InputError
@@ -86,9 +134,8 @@ def load_model(
     if as_of is not None:
         as_of = _check_as_of(as_of)
     key = options_key(options.model_dump(mode="json"))
+    restored = _restored_fits(factory)
     with factory() as session:
-        substance = crud.get_substance(session, substance_id=substance_id)
-        name = substance.name
         runs = None
         if as_of is None:
             # ids only: on a cache hit the observations are never loaded
@@ -96,11 +143,24 @@ def load_model(
         else:
             runs = crud.runs_as_of(session, substance_id=substance_id, as_of=as_of)
             version = crud.data_version_of(substance_id=substance_id, run_version_ids=[r.id for r in runs])
-        entry = crud.get_cached_fit(session, substance_id=substance_id, data_version=version, options_key=key)
+        ref = crud.cached_fit_ref(session, substance_id=substance_id, data_version=version, options_key=key)
+        if ref is not None:
+            hit = restored.get((substance_id, version, key, ref))
+            if hit is not None:
+                return StoredModel(
+                    result=hit[1], substance_id=substance_id, substance_name=hit[0],
+                    data_version=version, fitted_at=ref[1], cached=True, as_of=as_of,
+                )
+        substance = crud.get_substance(session, substance_id=substance_id)
+        name = substance.name
+        entry = None
+        if ref is not None:
+            entry = crud.get_cached_fit(session, substance_id=substance_id, data_version=version, options_key=key)
         if entry is not None:
+            result = _restore(entry.fit_json, entry.diagnostics_json)
+            restored.put((substance_id, version, key, (entry.id, entry.created_at)), (name, result))
             return StoredModel(
-                result=_restore(entry.fit_json, entry.diagnostics_json),
-                substance_id=substance_id, substance_name=name, data_version=version,
+                result=result, substance_id=substance_id, substance_name=name, data_version=version,
                 fitted_at=entry.created_at, cached=True, as_of=as_of,
             )
         if runs is None:
@@ -117,8 +177,11 @@ def load_model(
             fit_json=fit_json, diagnostics_json=result.diagnostics_json(),
         )
         fit_json, diagnostics_json, fitted_at = entry.fit_json, entry.diagnostics_json, entry.created_at
+        entry_ref = (int(entry.id), entry.created_at)
+    result = _restore(fit_json, diagnostics_json)
+    restored.put((substance_id, version, key, entry_ref), (name, result))
     return StoredModel(
-        result=_restore(fit_json, diagnostics_json), substance_id=substance_id,
+        result=result, substance_id=substance_id,
         substance_name=name, data_version=version, fitted_at=fitted_at, cached=False,
         as_of=as_of,
     )

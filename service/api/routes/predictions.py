@@ -5,7 +5,7 @@ from __future__ import annotations
 from typing import Annotated, Optional
 
 from fastapi import APIRouter, Depends, Query, Request
-from fastapi.responses import StreamingResponse
+from fastapi.responses import Response, StreamingResponse
 from pydantic import AwareDatetime
 
 from service.api.examples import openapi_examples
@@ -13,7 +13,7 @@ from service.api.fastjson import FastJSONRoute
 from service.conditions import condition_arrays
 from service.deps import Principal, require_scope
 from service.fitting import excluded_runs
-from service.jsonout import prediction_chunks
+from service.jsonout import CHUNK_ROWS, prediction_chunks
 from service.modelstore import load_model
 from service.predicting import prediction_header, run_predictions
 from service.schemas import PredictionRequest, PredictionResponse
@@ -36,7 +36,7 @@ def predict_substance(
         description="predict with the model as it was at this past time (ISO 8601 with a time "
         "zone): the same numbers a client got then",
     )] = None,
-) -> StreamingResponse:
+) -> Response:
     """Give conditions as objects (``conditions``) or, for many, as columns (``columns``).
     Both intervals (confidence of the mean rate, prediction for a new run) are at ``level``.
     Every response carries the caution text."""
@@ -56,4 +56,8 @@ def predict_substance(
     )
     if as_of is not None:
         header["as_of"] = stored.meta()["as_of"]
-    return StreamingResponse(prediction_chunks(header, pred, body.layout), media_type="application/json")
+    chunks = prediction_chunks(header, pred, body.layout)
+    if len(arrays) <= CHUNK_ROWS:
+        # one chunk: send it at once (streaming would cost a thread hand-off per chunk)
+        return Response(content=b"".join(chunks), media_type="application/json")
+    return StreamingResponse(chunks, media_type="application/json")
