@@ -7,6 +7,24 @@ laboratory reports them; one Orbitamide run (pH 9, 60 °C) was generated as a bi
 decline and is marked for a DFOP fit. They exercise the service, they describe no real
 chemical.
 
+Orbitamide (invented) was generated from this invented three-pathway Arrhenius set
+(reference temperature 25 °C, rate law :math:`k = k_A a_{H^+} + k_N + k_B a_{OH^-}` with
+the water chemistry of :func:`kinetics.water.hydronium_hydroxide_molar` at an ionic
+strength of 0.01 mol/L):
+
+============  =======================  ===========
+pathway       k at 25 °C               Ea [kJ/mol]
+============  =======================  ===========
+acid          0.052 L/(mol s)          70
+neutral       2.0e-8 1/s               90
+base          1.0e-2 L/(mol s)         60
+============  =======================  ===========
+
+Each run starts at 25 µmol/L and is sampled at 0, 4, 10, 20, 35, 50, 70 and 100 % of
+min(30 d, ln 10 / k). The pH 9 / 60 °C run is a DFOP decline (65 % of the substance at
+k1 = 2.59e-5 1/s, the rest at k1 / 12) whose DT50 equals ln 2 / k of the set, sampled
+over 14 half-lives; noise: 2 % (normal, seed 20260302).
+
 :func:`demo_payloads` gives the scenario as API request bodies (the round-trip test posts
 them through the HTTP API); :func:`load_demo` stores them directly, once.
 """
@@ -43,19 +61,24 @@ _VELTRAZINE_SERIES_MG_L = [
 ]
 
 _ORBITAMIDE_SERIES_UMOL_L = [
-    (20, 4, [0.0, 0.24, 0.61, 1.21, 2.12, 3.03, 4.24, 6.06],
-     [25.39, 23.41, 20.96, 18.26, 13.59, 10.36, 7.46, 4.46]),
-    (20, 7, _TIMES_30D, [25.46, 26.45, 25.08, 25.24, 24.36, 24.31, 24.85, 24.18]),
-    (20, 9, _TIMES_30D, [25.42, 25.06, 25.24, 24.78, 25.41, 24.6, 24.05, 24.32]),
-    (40, 4, [0.0, 0.05, 0.126, 0.251, 0.44, 0.628, 0.88, 1.256],
-     [25.23, 23.0, 20.55, 17.58, 13.43, 10.29, 7.54, 4.5]),
-    (40, 7, _TIMES_30D, [25.01, 25.4, 24.41, 25.14, 24.1, 24.25, 22.54, 23.05]),
-    (40, 9, _TIMES_30D, [24.7, 24.35, 23.54, 23.47, 20.39, 19.85, 18.76, 16.2]),
-    (60, 4, [0.0, 0.04, 0.1, 0.2, 0.35, 0.5, 0.7, 1.0],
-     [25.05, 19.65, 14.75, 8.15, 3.57, 1.59, 0.53, 0.1]),
-    (60, 7, _TIMES_30D, [26.09, 23.85, 23.58, 21.64, 20.35, 17.66, 16.24, 12.51]),
-    (60, 9, [0.0, 0.25, 0.5, 1.0, 2.0, 3.0, 5.0, 7.0, 10.0, 14.0, 21.0],
-     [24.64, 22.79, 19.44, 16.49, 12.94, 10.88, 8.97, 8.86, 7.76, 7.45, 6.13]),
+    (20, 4, [0.0, 0.299, 0.748, 1.5, 2.62, 3.74, 5.24, 7.48],
+     [24.6, 22.64, 20.22, 15.83, 10.58, 8.15, 4.96, 2.51]),
+    (20, 7, [0.0, 1.2, 3.0, 6.0, 10.5, 15.0, 21.0, 30.0],
+     [26.03, 25.17, 24.86, 24.29, 25.16, 24.44, 24.55, 24.14]),
+    (20, 9, [0.0, 1.2, 3.0, 6.0, 10.5, 15.0, 21.0, 30.0],
+     [24.44, 24.99, 24.72, 23.93, 23.19, 23.26, 22.05, 21.02]),
+    (40, 4, [0.0, 0.0476, 0.119, 0.238, 0.416, 0.595, 0.833, 1.19],
+     [24.91, 22.49, 19.75, 16.25, 11.28, 7.93, 4.97, 2.54]),
+    (40, 7, [0.0, 1.2, 3.0, 6.0, 10.5, 15.0, 21.0, 30.0],
+     [25.14, 23.97, 23.94, 23.21, 22.7, 21.13, 19.3, 17.13]),
+    (40, 9, [0.0, 0.932, 2.33, 4.66, 8.15, 11.7, 16.3, 23.3],
+     [24.48, 22.63, 20.13, 15.67, 11.51, 7.95, 5.16, 2.54]),
+    (60, 4, [0.0, 0.00952, 0.0238, 0.0476, 0.0833, 0.119, 0.167, 0.238],
+     [25.07, 22.1, 19.57, 16.06, 11.29, 8.04, 4.91, 2.47]),
+    (60, 7, [0.0, 0.924, 2.31, 4.62, 8.09, 11.6, 16.2, 23.1],
+     [25.27, 23.2, 19.49, 16.4, 11.01, 7.96, 4.89, 2.54]),
+    (60, 9, [0.0, 0.094, 0.188, 0.375, 0.751, 1.126, 1.877, 2.627, 3.754, 5.255, 7.882],
+     [24.39, 21.97, 19.69, 15.11, 10.57, 8.29, 6.47, 5.53, 4.25, 3.36, 2.0]),
 ]
 
 _BUFFERS = {4: "acetate 0.01 M", 7: "phosphate 0.01 M", 9: "borate 0.01 M"}
@@ -69,8 +92,9 @@ DEMO_SUBSTANCES: list[dict[str, Any]] = [
     {
         "name": "Orbitamide (invented)",
         "substance_class": "activated amide (invented)",
-        "notes": INVENTED_NOTE + " Acid-catalysed hydrolysis dominates; the pH 9 / 60 °C "
-        "run declines biphasically.",
+        "notes": INVENTED_NOTE + " Acid-catalysed hydrolysis dominates at pH 4, the neutral "
+        "reaction at pH 7 and base catalysis at pH 9; the pH 9 / 60 °C run declines "
+        "biphasically.",
     },
 ]
 
