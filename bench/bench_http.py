@@ -9,6 +9,7 @@ figure has its yardstick measured in the same run. Nothing here asserts.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import json
 import os
 import socket
@@ -17,6 +18,7 @@ import subprocess
 import sys
 import tempfile
 import time
+import uuid
 from pathlib import Path
 
 import httpx
@@ -218,25 +220,51 @@ def bench_ingest(service, key, sizes, label):
 def main(argv=None):
     parser = argparse.ArgumentParser(description=__doc__)
     parser.add_argument("--quick", action="store_true", help="shorter runs, smaller sizes")
+    parser.add_argument("--only", default="single,bulk,ingest",
+                        help="comma-separated parts to run: single, bulk, ingest")
     args = parser.parse_args(argv)
+    parts = set(args.only.split(","))
     seconds, repeats = (1.0, 3) if args.quick else (3.0, 5)
+    ingest_sizes = (100, 1_000) if args.quick else (100, 1_000, 5_000)
+    print(f"{os.cpu_count()} CPUs, load average {os.getloadavg()[0]:.1f}")
     with tempfile.TemporaryDirectory() as tmp:
         url = f"sqlite:///{tmp}/bench.db"
         key = prepare_database(url)
         env = {"FIELDRATE_DATABASE_URL": url}
         with Server("service.main:app_from_env", env, factory=True) as service, \
                 Server("_bare_app:app", {}) as bare:
-            bench_single(service, bare, key, seconds, repeats)
-            bench_bulk(service, key, (1_000, 10_000, 100_000), 3)
-            bench_ingest(service, key, (100, 1_000, 5_000) if not args.quick else (100, 1_000),
-                         "SQLite")
+            if "single" in parts:
+                bench_single(service, bare, key, seconds, repeats)
+            if "bulk" in parts:
+                bench_bulk(service, key, (1_000, 10_000, 100_000), 3)
+            if "ingest" in parts:
+                bench_ingest(service, key, ingest_sizes, "SQLite")
     pg = os.environ.get("FIELDRATE_BENCH_POSTGRES_URL")
-    if pg:
-        key = prepare_database(pg)
-        with Server("service.main:app_from_env", {"FIELDRATE_DATABASE_URL": pg},
-                    factory=True) as service:
-            bench_ingest(service, key, (100, 1_000, 5_000) if not args.quick else (100, 1_000),
-                         "PostgreSQL")
+    if pg and "ingest" in parts:
+        with postgres_schema(pg) as url:
+            key = prepare_database(url)
+            with Server("service.main:app_from_env", {"FIELDRATE_DATABASE_URL": url},
+                        factory=True) as service:
+                bench_ingest(service, key, ingest_sizes, "PostgreSQL")
+
+
+@contextlib.contextmanager
+def postgres_schema(base_url: str):
+    """A fresh schema on the PostgreSQL server of ``base_url``, dropped afterwards."""
+    from sqlalchemy import create_engine, text
+    from sqlalchemy.engine import make_url
+
+    schema = f"fr_bench_{uuid.uuid4().hex[:12]}"
+    admin = create_engine(make_url(base_url).difference_update_query(["options"]))
+    with admin.begin() as conn:
+        conn.execute(text(f'CREATE SCHEMA "{schema}"'))
+    url = make_url(base_url).update_query_dict({"options": f"-csearch_path={schema}"})
+    try:
+        yield url.render_as_string(hide_password=False)
+    finally:
+        with admin.begin() as conn:
+            conn.execute(text(f'DROP SCHEMA IF EXISTS "{schema}" CASCADE'))
+        admin.dispose()
 
 
 if __name__ == "__main__":

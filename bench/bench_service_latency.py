@@ -12,9 +12,7 @@ from __future__ import annotations
 import argparse
 import asyncio
 import os
-import socket
 import statistics
-import subprocess
 import sys
 import tempfile
 import time
@@ -25,6 +23,9 @@ import numpy as np
 
 REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
+sys.path.insert(0, str(REPO / "bench"))
+
+from bench_http import Server  # noqa: E402  (the uvicorn process helper shared by the benchmarks)
 
 from service.config import Settings  # noqa: E402
 from service.demo import load_demo  # noqa: E402
@@ -69,27 +70,10 @@ async def _asgi(settings: Settings, headers: dict, bodies: dict, repeats: int) -
             _report("ASGI", name, times, size)
 
 
-def _free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
 def _uvicorn(settings: Settings, headers: dict, bodies: dict, repeats: int) -> None:
-    port = _free_port()
-    env = dict(os.environ, FIELDRATE_DATABASE_URL=settings.database_url, PYTHONPATH=str(REPO))
-    proc = subprocess.Popen(
-        [sys.executable, "-m", "uvicorn", "--factory", "service.main:app_from_env",
-         "--host", "127.0.0.1", "--port", str(port), "--log-level", "warning"], env=env)
-    try:
-        base = f"http://127.0.0.1:{port}"
-        for _ in range(300):
-            try:
-                if httpx.get(base + "/ready", timeout=1).status_code == 200:
-                    break
-            except httpx.HTTPError:
-                time.sleep(0.1)
-        with httpx.Client(base_url=base, headers=headers, timeout=600) as c:
+    with Server("service.main:app_from_env", {"FIELDRATE_DATABASE_URL": settings.database_url},
+                factory=True) as server:
+        with httpx.Client(base_url=server.url, headers=headers, timeout=600) as c:
             c.get("/v1/substances/1/model")
             for name, body in bodies.items():
                 times, size = [], 0
@@ -100,9 +84,6 @@ def _uvicorn(settings: Settings, headers: dict, bodies: dict, repeats: int) -> N
                     assert r.status_code == 200, r.text[:500]
                     size = len(r.content)
                 _report("uvicorn", name, times, size)
-    finally:
-        proc.terminate()
-        proc.wait(timeout=30)
 
 
 def main() -> None:
