@@ -406,7 +406,9 @@ def create_runs_batch(
             insert(Run).returning(Run.id, sort_by_parameter_order=True), run_rows
         ).all()
         flat = [
-            {**o, "run_id": run_id} for run_id, observations in zip(ids, obs_rows) for o in observations
+            {**o, "run_id": run_id}
+            for run_id, observations in zip(ids, obs_rows)
+            for o in observations
         ]
         if flat:
             session.execute(insert(Observation), flat)
@@ -427,7 +429,9 @@ def create_runs_batch(
     return [by_id[i] for i in ids]
 
 
-def _current_with_keys(session: Session, wanted: dict[tuple[int, str], int]) -> dict[tuple[int, str], Run]:
+def _current_with_keys(
+    session: Session, wanted: dict[tuple[int, str], int]
+) -> dict[tuple[int, str], Run]:
     """The current runs holding any of the (study id, natural key) pairs (chunked queries)."""
     by_study: dict[int, list[str]] = {}
     for study_id, key in wanted:

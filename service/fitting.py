@@ -338,9 +338,9 @@ def _compute_fit(
                     evidence = _decline_evidence(run)
                     if evidence["significant"] is not False:
                         raise
+                    why = str(exc).removeprefix(run.label + ": ")
                     d.update(_no_decline_entry(
-                        run, evidence,
-                        f"The series could not be fitted ({str(exc).removeprefix(run.label + ': ')}).",
+                        run, evidence, f"The series could not be fitted ({why})."
                     ))
                     diags.append(d)
                     continue

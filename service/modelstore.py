@@ -143,7 +143,9 @@ def load_model(
         else:
             runs = crud.runs_as_of(session, substance_id=substance_id, as_of=as_of)
             version = crud.data_version_of(substance_id=substance_id, run_version_ids=[r.id for r in runs])
-        ref = crud.cached_fit_ref(session, substance_id=substance_id, data_version=version, options_key=key)
+        ref = crud.cached_fit_ref(
+            session, substance_id=substance_id, data_version=version, options_key=key
+        )
         if ref is not None:
             hit = restored.get((substance_id, version, key, ref))
             if hit is not None:
@@ -155,7 +157,9 @@ def load_model(
         name = substance.name
         entry = None
         if ref is not None:
-            entry = crud.get_cached_fit(session, substance_id=substance_id, data_version=version, options_key=key)
+            entry = crud.get_cached_fit(
+                session, substance_id=substance_id, data_version=version, options_key=key
+            )
         if entry is not None:
             result = _restore(entry.fit_json, entry.diagnostics_json)
             restored.put((substance_id, version, key, (entry.id, entry.created_at)), (name, result))

@@ -16,7 +16,8 @@ DAY_S = 86400.0
 def _series(conc, times_d=(0, 1, 2, 4, 7, 14, 21, 30), t_C=20.0, pH=7.0, label="flat"):
     return RunInput(
         label=label, temperature_K=273.15 + t_C, pH=pH, ionic_strength_M=0.0, kind="series",
-        time_s=tuple(float(t) * DAY_S for t in times_d), concentration=tuple(float(c) for c in conc),
+        time_s=tuple(float(t) * DAY_S for t in times_d),
+        concentration=tuple(float(c) for c in conc),
         below_loq=tuple(False for _ in conc),
     )
 

@@ -178,4 +178,6 @@ def test_noisy_flat_run_bound_from_regression(client):
     assert diag["status"] == "excluded"
     assert "upper confidence bound" in diag["k_upper_bound_basis"]
     assert diag["k_upper_bound_per_s"] > 0
-    assert diag["dt50_lower_bound_s"] == pytest.approx(math.log(2) / diag["k_upper_bound_per_s"], rel=1e-12)
+    assert diag["dt50_lower_bound_s"] == pytest.approx(
+        math.log(2) / diag["k_upper_bound_per_s"], rel=1e-12
+    )
