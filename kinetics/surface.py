@@ -57,6 +57,19 @@ buffer batch, on another day, scatter by more than their own series says) and
   about 93 % of true rates without moderation).
 * Without standard errors :math:`s_i = 0`, so :math:`\\hat\\tau^2 = RSS/(n-p)`
   and :math:`q = 1`: the fit is ordinary least squares on :math:`\\ln k`.
+* When only some runs carry a standard error (a lab posts raw series, whose
+  fits give one, beside reported rate constants that have none), each run
+  without one is given the mean within-run variance :math:`\\overline{s^2}`
+  of the runs that have one (after moderation, when that applies), and the
+  fit proceeds as if every run had it. This is the value the model already
+  assumes for a new run of unknown own precision (the prediction scatter
+  below), so a reported rate is treated as a run of typical precision: the
+  alternative :math:`s_i = 0` would weight such runs by :math:`\\tau^2` alone,
+  ever more heavily than the measured series as :math:`\\hat\\tau^2` shrinks
+  (without limit at :math:`\\hat\\tau^2 = 0`), merely because their
+  precision was not reported. The imputed runs and value are recorded
+  (:attr:`SurfaceFit.se_imputed_runs`, :attr:`SurfaceFit.se_imputed_ln_k`);
+  with standard errors on every run or on none the fit is unchanged.
 
 The covariance of the parameters is :math:`(J^T W J + P)^{-1}` with
 :math:`W = \\mathrm{diag}(1/(q(s_i^2+\\hat\\tau^2)))` and :math:`P` the
@@ -680,6 +693,14 @@ class SurfaceFit:
         :math:`d_0` of the within-run variance moderation
         (:func:`moderate_variances`); None when the runs' standard errors were
         used as given (no degrees of freedom known, or no standard errors).
+    se_imputed_runs : tuple of int
+        Positions in ``measurements`` of the runs that had no ``se_ln_k`` while
+        others had one; they were given :attr:`se_imputed_ln_k` (see the module
+        docstring). Empty when every run or none carried a standard error.
+    se_imputed_ln_k : float or None
+        The standard error of ln k [-] given to those runs, the square root of
+        the mean (moderated) within-run variance of the runs with one; None
+        when nothing was imputed.
     """
 
     pathways: tuple[str, ...]
@@ -704,6 +725,8 @@ class SurfaceFit:
     hidden_pathway_ln_k_ref_max: Mapping[str, float] = field(default_factory=dict)
     hidden_pathway_Ea_J_per_mol: float = EFSA_DEFAULT_EA_J_PER_MOL
     within_run_prior_dof: float | None = None
+    se_imputed_runs: tuple[int, ...] = ()
+    se_imputed_ln_k: float | None = None
 
     # ------------------------------------------------------------------ #
     @property
@@ -1034,6 +1057,10 @@ class SurfaceFit:
             "within_run_prior_dof": None
             if self.within_run_prior_dof is None
             else float(self.within_run_prior_dof),
+            "se_imputed_runs": [int(i) for i in self.se_imputed_runs],
+            "se_imputed_ln_k": None
+            if self.se_imputed_ln_k is None
+            else float(self.se_imputed_ln_k),
         }
 
     @classmethod
@@ -1104,6 +1131,10 @@ class SurfaceFit:
                 within_run_prior_dof=None
                 if data.get("within_run_prior_dof") is None
                 else float(data["within_run_prior_dof"]),
+                se_imputed_runs=tuple(int(i) for i in data.get("se_imputed_runs", ())),
+                se_imputed_ln_k=None
+                if data.get("se_imputed_ln_k") is None
+                else float(data["se_imputed_ln_k"]),
             )
         except (KeyError, TypeError, ValueError, IndexError) as exc:
             if isinstance(exc, InputError):
@@ -1174,6 +1205,8 @@ class _Design:
     ph_levels: list[np.ndarray]  # measurement indices per pH level (ascending pH)
     n: int
     se_prior_dof: float | None = None
+    se_imputed: tuple[int, ...] = ()
+    se_imputed_ln_k: float | None = None
 
 
 #: Prior degrees of freedom standing for "pool the within-run variances fully".
@@ -1749,28 +1782,30 @@ def _build_design(measurements: Sequence[RateMeasurement], tref: float, model: s
     sal = np.array([m.salinity for m in measurements])
     y = np.log(np.array([m.k_per_s for m in measurements]))
     ses = [m.se_ln_k for m in measurements]
-    given = [s is not None for s in ses]
-    if any(given) and not all(given):
-        missing = [m.label or str(i) for i, m in enumerate(measurements) if m.se_ln_k is None]
-        raise InputError(
-            "give se_ln_k for every run or for none: the surface weights runs by their "
-            f"standard errors, and these runs have none: {', '.join(missing[:10])}"
-        )
-    if all(given):
-        se2 = np.array([s * s for s in ses])
-        dofs = [m.se_dof for m in measurements]
+    given = np.array([s is not None for s in ses], dtype=bool)
+    has = np.flatnonzero(given)
+    imputed: tuple[int, ...] = tuple(int(i) for i in np.flatnonzero(~given)) if has.size else ()
+    se2 = np.zeros(len(ses))
+    prior_dof = None
+    imputed_se = None
+    if has.size:
+        se2_given = np.array([ses[i] * ses[i] for i in has])
+        dofs = [measurements[i].se_dof for i in has]
         if all(d is not None for d in dofs):
-            se2, prior_dof = moderate_variances(se2, np.array(dofs, dtype=float))
-        else:
-            prior_dof = None
-    else:
-        se2, prior_dof = np.zeros(len(ses)), None
+            se2_given, prior_dof = moderate_variances(se2_given, np.array(dofs, dtype=float))
+        se2[has] = se2_given
+        if imputed:
+            # runs without a standard error: the mean within-run variance of the
+            # others, the variance the model assumes for a new run (module docstring)
+            fill = float(np.mean(se2_given))
+            se2[list(imputed)] = fill
+            imputed_se = math.sqrt(fill)
     u = tref / T - 1.0
     offset = np.log(T / tref) if model == "eyring" else np.zeros_like(T)
     return _Design(
         T=T, u=u, offset=offset, lnc=_ln_concentrations(T, ph, ionic, sal), y=y, se2=se2,
-        has_se=all(given), ph_levels=_levels(ph, PH_LEVEL_TOLERANCE), n=len(measurements),
-        se_prior_dof=prior_dof,
+        has_se=bool(has.size), ph_levels=_levels(ph, PH_LEVEL_TOLERANCE), n=len(measurements),
+        se_prior_dof=prior_dof, se_imputed=imputed, se_imputed_ln_k=imputed_se,
     )
 
 
@@ -1853,7 +1888,9 @@ def fit_surface(
     Parameters
     ----------
     measurements : sequence of RateMeasurement
-        The runs (all with ``se_ln_k`` or all without).
+        The runs. Runs without ``se_ln_k`` among runs with one are given the
+        mean within-run variance of the others (module docstring; listed in
+        :attr:`SurfaceFit.se_imputed_runs`).
     temperature_model : str
         ``"arrhenius"`` or ``"eyring"``.
     pathways : str or tuple of str
@@ -1870,7 +1907,7 @@ def fit_surface(
     Raises
     ------
     InputError
-        Unknown model or pathway, mixed presence of standard errors, bad prior.
+        Unknown model or pathway, bad prior.
     DataError
         Fewer runs than the model needs.
     IdentifiabilityError
@@ -2061,4 +2098,6 @@ def fit_surface(
         hidden_pathway_ln_k_ref_max=hidden,
         hidden_pathway_Ea_J_per_mol=float(hidden_ea),
         within_run_prior_dof=design.se_prior_dof,
+        se_imputed_runs=design.se_imputed,
+        se_imputed_ln_k=design.se_imputed_ln_k,
     )
