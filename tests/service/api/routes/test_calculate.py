@@ -84,3 +84,22 @@ def test_bad_run_is_422_by_index(client, bad, loc):
     r = client.post("/v1/calculate", json={"runs": runs})
     assert r.status_code == 422
     assert any(d["loc"] == loc for d in r.json()["detail"])
+
+
+def test_flat_run_excluded_in_a_calculation(client):
+    runs = _demo_runs()
+    flat = dict(runs[1])  # 20 °C, pH 7
+    flat["replicate_label"] = "B"
+    flat["series"] = {**flat["series"], "concentration": [10.0] * len(flat["series"]["time"])}
+    body = {"runs": runs + [flat], "conditions": [{"temperature_C": 12.0, "pH": 7.0}]}
+    r = client.post("/v1/calculate", json=body)
+    assert r.status_code == 200, r.text
+    calc = r.json()
+    label = calc["model"]["runs"][len(runs)]["label"]
+    assert label.startswith(f"runs[{len(runs)}]")
+    assert [e["label"] for e in calc["model"]["excluded_runs"]] == [label]
+    assert [e["label"] for e in calc["prediction"]["excluded_runs"]] == [label]
+    assert calc["model"]["n_measurements"] == len(runs)
+    # the other runs give the same surface as without the flat run
+    alone = client.post("/v1/calculate", json={"runs": runs}).json()
+    assert calc["model"]["parameters"] == alone["model"]["parameters"]
