@@ -18,7 +18,7 @@ from typing import Any, Optional, Sequence
 import numpy as np
 
 from kinetics.caution import CAUTION_TEXT
-from kinetics.errors import DataError, FitError, InputError, KineticsError
+from kinetics.errors import DataError, FitError, KineticsError
 from kinetics.series import fit_series
 from kinetics.surface import RateMeasurement, SurfaceFit, fit_surface
 
@@ -33,6 +33,7 @@ __all__ = [
     "CHI2_FLAG_PERCENT",
     "MAX_SE_LN_K_FITTED",
     "excluded_runs",
+    "se_imputed_runs",
 ]
 
 log = logging.getLogger("fieldrate.service")
@@ -426,12 +427,6 @@ def _compute_fit(
             f"rate; {len(measurements)} remain{note}. Add runs at conditions where the "
             "substance declines measurably (higher temperature, other pH), then ask again"
         )
-    if len({m.se_ln_k is None for m in measurements}) > 1:
-        without = [d["label"] for d, m in zip(used, measurements) if m.se_ln_k is None]
-        raise InputError(
-            "either every run or no run must carry a standard error of ln k; these runs have "
-            f"none: {'; '.join(without)}. Give se_ln_k for the reported rate constants"
-        )
     fixed: Any = "auto" if pathways == "auto" else tuple(pathways.split(","))
     try:
         surface = fit_surface(
@@ -475,9 +470,31 @@ def _parameter_unit(name: str) -> str:
     return "-"
 
 
+def se_imputed_runs(surface: SurfaceFit, runs: Sequence[dict[str, Any]]) -> list[dict[str, Any]]:
+    """The runs that had no standard error of ln k and were given the study's typical one.
+
+    ``surface.se_imputed_runs`` counts positions among the runs that entered the surface,
+    which are the diagnostics not marked excluded, in order.
+    """
+    entered = [d for d in runs if d.get("status") != "excluded"]
+    return [
+        {"run_uid": entered[i].get("run_uid"), "version": entered[i].get("version"),
+         "label": entered[i]["label"]}
+        for i in surface.se_imputed_runs if 0 <= i < len(entered)
+    ]
+
+
 def model_flags(surface: SurfaceFit, runs: list[dict[str, Any]]) -> list[str]:
     """Plain-language warnings about a fitted surface."""
     flags = []
+    imputed = se_imputed_runs(surface, runs)
+    if imputed and surface.se_imputed_ln_k is not None:
+        flags.append(
+            "no standard error of ln k for: " + "; ".join(e["label"] for e in imputed)
+            + f"; these runs were weighted as runs of typical precision for this study "
+            f"(standard error of ln k {surface.se_imputed_ln_k:.3g}, the root mean within-run "
+            "variance of the other runs)"
+        )
     if surface.uncharacterised_pathways:
         flags.append(
             "uncharacterised pathways: " + ", ".join(surface.uncharacterised_pathways)
@@ -554,6 +571,8 @@ def model_payload(
         ],
         "runs": result.runs,
         "excluded_runs": excluded_runs(result.runs),
+        "se_imputed_runs": se_imputed_runs(s, result.runs),
+        "se_imputed_ln_k": _finite(s.se_imputed_ln_k),
         "flags": model_flags(s, result.runs),
         "caution": CAUTION_TEXT,
     }

@@ -641,6 +641,14 @@ class ExcludedRunPublic(Public):
     reason: Optional[str]
 
 
+class RunRefPublic(Public):
+    """A stored run named by id, version and label."""
+
+    run_uid: Optional[str]
+    version: Optional[int]
+    label: str
+
+
 class CandidatePublic(Public):
     pathways: list[str]
     identifiable: bool
@@ -682,6 +690,14 @@ class SurfaceModelPublic(Public):
     runs: list[RunDiagnosticsPublic]
     excluded_runs: list[ExcludedRunPublic] = Field(
         default_factory=list, description="runs left out of the surface (no measurable decline)"
+    )
+    se_imputed_runs: list[RunRefPublic] = Field(
+        default_factory=list,
+        description="runs without a standard error of ln k (among runs with one), weighted "
+        "as runs of typical precision for the study",
+    )
+    se_imputed_ln_k: Optional[float] = Field(
+        default=None, description="standard error of ln k given to those runs [-]"
     )
     flags: list[str]
     caution: str

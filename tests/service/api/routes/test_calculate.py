@@ -58,10 +58,14 @@ def test_one_run_is_422(client):
     assert r.status_code == 422 and "at least 2" in r.json()["detail"]
 
 
-def test_mixed_standard_errors_is_422(client):
+def test_reported_rate_without_se_among_series_is_weighted_as_typical(client):
     runs = _demo_runs()[:3] + [{"temperature_C": 30, "pH": 7, "rate": {"k": 0.01, "k_unit": "1/d"}}]
     r = client.post("/v1/calculate", json={"runs": runs})
-    assert r.status_code == 422 and "se_ln_k" in r.json()["detail"]
+    assert r.status_code == 200, r.text
+    model = r.json()["model"]
+    assert [e["label"] for e in model["se_imputed_runs"]] == ["runs[3] (30.0 °C, pH 7.00)"]
+    assert model["se_imputed_ln_k"] > 0
+    assert any(f.startswith("no standard error of ln k for: runs[3]") for f in model["flags"])
 
 
 def test_series_the_model_cannot_fit_names_the_run(client):

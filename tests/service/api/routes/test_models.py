@@ -181,3 +181,39 @@ def test_noisy_flat_run_bound_from_regression(client):
     assert diag["dt50_lower_bound_s"] == pytest.approx(
         math.log(2) / diag["k_upper_bound_per_s"], rel=1e-12
     )
+
+
+def _sfo_conc(k_per_d: float, wobble: tuple[float, ...]) -> list[float]:
+    """An SFO decline at the helper's sampling times, with a small fixed relative wobble."""
+    return [10.0 * math.exp(-k_per_d * t) * (1.0 + w)
+            for t, w in zip((0, 1, 2, 4, 7), wobble)]
+
+
+def test_series_runs_with_a_reported_rate_without_se_give_a_model_naming_it(client):
+    sid, study = make_study(client)
+    wobbles = ((0.01, -0.02, 0.015, -0.01, 0.02), (-0.015, 0.01, -0.02, 0.02, -0.01),
+               (0.02, -0.01, 0.01, -0.015, 0.01))
+    for (t, k), w in zip(((40.0, 0.08), (50.0, 0.2), (60.0, 0.45)), wobbles):
+        r = client.post("/v1/runs", json=series_run_body(study, temperature_C=t, conc=_sfo_conc(k, w)))
+        assert r.status_code == 201, r.text
+    reported = client.post("/v1/runs", json={
+        "study_id": study, "temperature_C": 55.0, "pH": 7.0, "replicate_label": "R",
+        "rate": {"k": 0.3, "k_unit": "1/d"},
+    })
+    assert reported.status_code == 201, reported.text
+    uid = reported.json()["run_uid"]
+    r = client.get(f"/v1/substances/{sid}/model")
+    assert r.status_code == 200, r.text
+    m = r.json()
+    assert m["n_measurements"] == 4
+    assert [e["run_uid"] for e in m["se_imputed_runs"]] == [uid]
+    label = m["se_imputed_runs"][0]["label"]
+    assert any(f.startswith("no standard error of ln k for: " + label) for f in m["flags"])
+    series_se = [d["se_ln_k"] for d in m["runs"] if d["kind"] == "series"]
+    # the imputed value is the root mean (moderated) within-run variance of the series runs;
+    # moderation shrinks each variance towards a pooled value between the smallest and largest,
+    # so the result lies between the smallest and largest series standard error
+    # (common practice, no source)
+    assert min(series_se) <= m["se_imputed_ln_k"] <= max(series_se)
+    diag = next(d for d in m["runs"] if d["run_uid"] == uid)
+    assert diag["se_ln_k"] is None and diag["status"] == "fitted"
