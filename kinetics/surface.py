@@ -104,6 +104,8 @@ __all__ = [
     "PH_LEVEL_TOLERANCE",
     "TEMPERATURE_LEVEL_TOLERANCE_K",
     "SE_POOLING_MAX_DOF",
+    "MAX_SE_LN_K",
+    "MIN_SE_LN_K",
     "RateMeasurement",
     "PathwayCandidate",
     "ParameterInterval",
@@ -140,6 +142,14 @@ EFSA_DEFAULT_EA_J_PER_MOL = 65.4e3
 #: met in hydrolysis, so that a prediction away from the measured temperature
 #: carries a deliberately broad temperature uncertainty.
 DEFAULT_EA_PRIOR_SD_J_PER_MOL = 15.0e3
+#: Largest accepted ``se_ln_k`` [-]: k uncertain by a factor of e^20 (about
+#: 5e8) is no measurement (the same limit as the series fits' refusal).
+MAX_SE_LN_K = 20.0
+#: Smallest within-run standard error of ln k used in the fit [-]: ln k of a
+#: hydrolysis rate (|ln k| up to about 50) is resolved to about 1e-14 in double
+#: precision, so smaller values carry no meaning and would only overflow the
+#: weights.
+MIN_SE_LN_K = 1.0e-12
 #: Measured pH values closer than this are one pH level for the
 #: identifiability rules (buffers drift slightly with temperature).
 PH_LEVEL_TOLERANCE = 0.5
@@ -266,8 +276,10 @@ class RateMeasurement:
     k_per_s : float
         Observed pseudo-first-order rate constant [1/s], > 0.
     se_ln_k : float or None
-        Standard error of ln k_per_s from the series fit [-], > 0; None when
-        only the rate constant is known.
+        Standard error of ln k_per_s from the series fit [-], > 0 and at most
+        :data:`MAX_SE_LN_K`; None when only the rate constant is known. In the
+        fit a standard error below :data:`MIN_SE_LN_K` counts as that value
+        (ln k itself is only resolved to about that in double precision).
     ionic_strength_M : float
         Ionic strength of the buffer [mol/L].
     salinity : float
@@ -317,6 +329,12 @@ class RateMeasurement:
                 raise InputError(
                     f"se_ln_k must be a positive standard error of ln k{where}, got {se!r}; "
                     "give None when the run has no standard error"
+                )
+            if se > MAX_SE_LN_K:
+                raise InputError(
+                    f"se_ln_k = {se!r}{where} means k is uncertain by a factor of more than "
+                    f"e^{MAX_SE_LN_K:g}: the run carries no rate information (leave it out, or "
+                    "give None if the standard error is unknown)"
                 )
         dof = self.se_dof
         if dof is not None:
@@ -1789,7 +1807,7 @@ def _build_design(measurements: Sequence[RateMeasurement], tref: float, model: s
     prior_dof = None
     imputed_se = None
     if has.size:
-        se2_given = np.array([ses[i] * ses[i] for i in has])
+        se2_given = np.array([max(ses[i], MIN_SE_LN_K) ** 2 for i in has])
         dofs = [measurements[i].se_dof for i in has]
         if all(d is not None for d in dofs):
             se2_given, prior_dof = moderate_variances(se2_given, np.array(dofs, dtype=float))

@@ -24,6 +24,8 @@ from kinetics.surface import (
     DEFAULT_EA_PRIOR_SD_J_PER_MOL,
     EFSA_DEFAULT_EA_J_PER_MOL,
     GAS_CONSTANT_J_PER_MOL_K as R,
+    MAX_SE_LN_K,
+    MIN_SE_LN_K,
     PATHWAYS,
     PLANCK_J_S,
     SE_POOLING_MAX_DOF,
@@ -182,6 +184,26 @@ def test_mixed_standard_errors_fit_as_if_the_imputed_value_were_given(se_dof):
     del old["se_imputed_runs"], old["se_imputed_ln_k"]
     legacy = SurfaceFit.from_dict(old)
     assert legacy.se_imputed_runs == () and legacy.se_imputed_ln_k is None
+
+
+def test_extreme_standard_errors_are_refused_or_held_at_the_resolution_of_ln_k():
+    with pytest.raises(InputError, match=r"e\^20"):
+        RateMeasurement(293.15, 4.0, 1e-9, se_ln_k=1.34e154)
+    assert RateMeasurement(293.15, 4.0, 1e-9, se_ln_k=MAX_SE_LN_K).se_ln_k == MAX_SE_LN_K
+    # inputs found by the property tests (they overflowed the weights)
+    raw = [(293.15, 4.0, 1.192092896e-07, None), (293.15, 4.0, 1e-09, None),
+           (293.15, 4.0, 1e-09, 6.55014924922606e-92)]
+    fit = fit_surface([RateMeasurement(t, ph, k, se_ln_k=se) for t, ph, k, se in raw])
+    assert fit.se_imputed_runs == (0, 1)
+    assert_allclose(fit.se_imputed_ln_k, MIN_SE_LN_K, rtol=1e-14)
+    assert math.isfinite(fit.residual_scale) and np.all(np.isfinite(fit.covariance))
+    held = fit_surface([RateMeasurement(t, ph, k, se_ln_k=MIN_SE_LN_K) for t, ph, k, _ in raw])
+    assert_allclose(fit.estimates, held.estimates, rtol=1e-12)
+    assert_allclose(fit.residual_scale, held.residual_scale, rtol=1e-12)
+    raw = [(293.15, 4.0, 0.0006499391076200527, None), (293.15, 4.0, 0.0004135645704745287, 1.0),
+           (313.15, 4.0, 0.0003115059476680626, 7.827686268831674e-41)]
+    with pytest.raises(IdentifiabilityError, match="3 runs"):
+        fit_surface([RateMeasurement(t, ph, k, se_ln_k=se) for t, ph, k, se in raw])
 
 
 # Regression values: fits with standard errors on every run or on none, computed
