@@ -43,7 +43,13 @@ from kinetics._series_models import (
     natural_from_theta,
     natural_gradient,
 )
-from kinetics.errors import ConvergenceError, DataError, IdentifiabilityError, InputError
+from kinetics.errors import (
+    ConvergenceError,
+    DataError,
+    IdentifiabilityError,
+    InputError,
+    KineticsError,
+)
 
 __all__ = [
     "SERIES_MODELS",
@@ -1167,7 +1173,10 @@ def fit_sfo_batch(series: Sequence[Sequence[Any]], *, time_unit: str = "d",
     reweighting for proportional errors and statistics, see there), but the
     iterations and the statistics run on all series together as numpy arrays,
     with no per-series solver call. Estimates and standard errors agree with
-    :func:`fit_series` to about 1e-10 relative.
+    :func:`fit_series` to about 1e-10 relative. A series whose vectorised
+    iteration ends where the model is not finite (with proportional errors,
+    when the smallest concentrations lie many orders of magnitude below the
+    others) is refitted alone by the engine of :func:`fit_series`.
 
     Parameters
     ----------
@@ -1214,10 +1223,30 @@ def fit_sfo_batch(series: Sequence[Sequence[Any]], *, time_unit: str = "d",
         e1 = np.exp(-np.exp(theta[:, 1])[:, None] * ts) * mask
         amp = np.sum(e1 * ys, axis=1) / np.sum(e1 * e1, axis=1)
         theta[:, 0] = np.where(np.isfinite(amp) & (amp > 0), amp, theta[:, 0])
-        theta = _batch_solve(theta, ts, ys, mask, error_model)
-    # back to seconds and the data's concentration unit, as in _from_scaled
-    theta = np.column_stack((theta[:, 0] * yscale, theta[:, 1] - np.log(tscale)))
+        theta, collapsed = _batch_solve(theta, ts, ys, mask, error_model)
+        # back to seconds and the data's concentration unit, as in _from_scaled
+        theta = np.column_stack((theta[:, 0] * yscale, theta[:, 1] - np.log(tscale)))
+        k = np.exp(theta[:, 1])
+        f = theta[:, 0][:, None] * np.exp(-k[:, None] * t_s)
+        healthy = (~collapsed & np.all(np.isfinite(theta), axis=1) & np.isfinite(k) & (k > 0)
+                   & np.all(np.isfinite(f), axis=1) & (f[:, 0] > 0))
+    # The reweighting for proportional errors can run off to a vanishing amplitude
+    # or an unbounded rate when the smallest concentrations are many orders of
+    # magnitude below the others; such a series is refitted by the single-series
+    # engine, whose outcome (a fit or an error) is that of fit_series.
+    for i in np.flatnonzero(~healthy):
+        theta[i] = _single_sfo_theta(preps[i], error_model, i)
     return _batch_results(preps, theta, t_s, y, mask, sizes, error_model)
+
+
+def _single_sfo_theta(prep: _Prepared, error_model: str, index: int) -> np.ndarray:
+    """[C0, ln k] of one prepared series by the engine of :func:`fit_series`."""
+    spec = MODELS["SFO"]
+    try:
+        starts = spec.starts(prep.t_s, prep.y, _loglinear_start(prep.t_s, prep.y))
+        return _fit_engine(spec, prep.t_s, prep.y, starts, error_model)
+    except KineticsError as exc:
+        raise type(exc)(f"series[{index}]: {exc}") from None
 
 
 def _prepare_batch(series, time_unit: str, factor: float) -> list[_Prepared]:
@@ -1291,10 +1320,11 @@ def _prepare_batch(series, time_unit: str, factor: float) -> list[_Prepared]:
             lc = np.where(pos, np.log(np.where(pos, c_all, 1.0)), 0.0)
             slope = (xm * lc).sum(axis=1) / (xm * xm).sum(axis=1)
             ok &= np.isfinite(slope) & (slope < 0)
-        t_sec = t_all * factor
+        # seconds only for the series kept here: the others may hold times whose
+        # conversion overflows, and _prepare refuses them with its own message
         for i in np.flatnonzero(ok):
             n = sizes[i]
-            out[i] = _Prepared(t_sec[i, :n].copy(), c_all[i, :n].copy(), group[i, :n].copy(),
+            out[i] = _Prepared(t_all[i, :n] * factor, c_all[i, :n].copy(), group[i, :n].copy(),
                                int(n_times[i]), time_unit, factor, 0, 0)
     for i in range(b):
         if out[i] is None:
@@ -1541,17 +1571,27 @@ def _batch_lm(theta, ts, ys, w, max_iter=500):
 
 
 def _batch_solve(theta, ts, ys, mask, error_model):
-    """Constant-variance fit of every series, then reweighting for proportional errors."""
+    """Constant-variance fit of every series, then reweighting for proportional errors.
+
+    Returns the scaled parameters and, per series, whether the bridge to the
+    reweighting lost the amplitude (such series are refitted one at a time).
+    """
     if not np.all(np.isfinite(theta)):
         bad = int(np.argmax(~np.all(np.isfinite(theta), axis=1)))
         raise ConvergenceError(f"series[{bad}]: no finite SFO starting values")
     theta = _batch_lm(theta, ts, ys, mask)
+    collapsed = np.zeros(theta.shape[0], dtype=bool)
     if error_model == "proportional":
         # bridge with fixed weights 1/y^2, as in _fit_engine / _observed_weights
         pos = (ys > 0) & (mask > 0)
         floor = np.where(pos, ys, np.inf).min(axis=1, keepdims=True)
         w_obs = mask / np.maximum(ys, floor) ** 2
         bridged = _batch_lm(theta, ts, ys, w_obs)
+        # a bridged curve that stays a thousandfold below the largest measured
+        # value (1 on this scale) has lost the amplitude to the smallest values,
+        # which dominate the weights 1/y^2; the caller refits such a series alone
+        f_b, _, _ = _batch_model(bridged, ts)
+        collapsed = ~(np.max(f_b * mask, axis=1) >= 1e-3)
         theta = np.where(np.all(np.isfinite(bridged), axis=1)[:, None], bridged, theta)
         f, _, _ = _batch_model(theta, ts)
         w = _batch_weights(f, mask, error_model)
@@ -1566,7 +1606,5 @@ def _batch_solve(theta, ts, ys, mask, error_model):
         else:
             raise ConvergenceError(f"SFO batch: the reweighting for proportional errors did "
                                    f"not settle in {_IRLS_MAX} iterations")
-    if not np.all(np.isfinite(theta)):
-        bad = int(np.argmax(~np.all(np.isfinite(theta), axis=1)))
-        raise ConvergenceError(f"series[{bad}]: the SFO iteration ended at non-finite values")
-    return theta
+    # rows that ended at non-finite values are refitted one by one by the caller
+    return theta, collapsed

@@ -596,6 +596,46 @@ def test_batch_handles_time_units():
         assert_allclose(a.k_per_s, b.k_per_s, rtol=1e-10)
 
 
+# Regression inputs found by the property tests (fit_sfo_batch once emitted a
+# RuntimeWarning on them instead of a fit or a clear error).
+HUGE_TIME_SERIES = ([0.0, 0.0, 2.0806633505350878e+303], [0.0, 0.0, 0.0])
+TINY_LATE_VALUES = [
+    ([0.0625, 0.125, 5.0, 5.0, 5.0, 5.0, 55.0],
+     [0.772184789761521, 0.7788007830714049, 4.5399929762484854e-05, 4.5399929762484854e-05,
+      4.5399929762484854e-05, 4.5399929762484854e-05, 1.6889118802245324e-48]),
+    ([0.0625, 0.125, 4.0, 5.0, 5.0, 5.0, 29.0],
+     [0.772184789761521, 0.7788007830714049, 0.00033546262790251185, 4.5399929762484854e-05,
+      4.5399929762484854e-05, 4.5399929762484854e-05, 6.47023492564546e-26]),
+]
+
+
+@pytest.mark.parametrize("error_model", ["constant", "proportional"])
+def test_batch_series_with_overflowing_times_is_refused_by_name(error_model):
+    # times whose conversion to seconds overflows belong to a series that is refused
+    with pytest.raises(DataError, match=r"^series\[0\]: ") as single:
+        fit_sfo_batch([([0.0, 0.0], [1.0, 1.0]), HUGE_TIME_SERIES], error_model=error_model)
+    assert "one time" in str(single.value)
+    with pytest.raises(DataError, match=r"^series\[1\]: model SFO .* 3 or more different times"):
+        fit_sfo_batch([(T_DAYS, _noisy_sfo()), HUGE_TIME_SERIES], error_model=error_model)
+
+
+@pytest.mark.parametrize("error_model", ["constant", "proportional"])
+@pytest.mark.parametrize("case", range(len(TINY_LATE_VALUES)))
+def test_batch_with_tiny_late_values_agrees_with_fit_series(case, error_model):
+    # with relative-error weights the vectorised iteration ran off to an unbounded
+    # rate on these series; they are refitted alone and must give fit_series' numbers
+    t, c = TINY_LATE_VALUES[case]
+    s = fit_series(t, c, model="SFO", error_model=error_model)
+    batch = fit_sfo_batch([(T_DAYS, _noisy_sfo()), (t, c)], error_model=error_model)
+    b = batch[1]
+    assert math.isfinite(b.k_per_s) and math.isfinite(b.se_ln_k)
+    assert_allclose(b.estimates, s.estimates, rtol=1e-6)
+    assert_allclose(b.se_ln_k, s.se_ln_k, rtol=1e-6)
+    assert_allclose(b.dt50_s, s.dt50_s, rtol=1e-6)
+    alone = fit_series(T_DAYS, _noisy_sfo(), model="SFO", error_model=error_model)
+    assert_allclose(batch[0].estimates, alone.estimates, rtol=1e-8)
+
+
 def test_dfop_g_is_logistic_of_fitted_logit():
     rng = np.random.default_rng(4)
     c = _curve("DFOP", TRUTH["DFOP"], T_DAYS) + rng.normal(0, 0.8, T_DAYS.size)
