@@ -109,6 +109,7 @@ __all__ = [
     "RateMeasurement",
     "PathwayCandidate",
     "ParameterInterval",
+    "PreparedConditions",
     "SurfaceFit",
     "fit_surface",
     "arrhenius_ln_k",
@@ -656,6 +657,32 @@ def _ln_concentrations(
 
 
 @dataclass(frozen=True, eq=False)
+class PreparedConditions:
+    """Conditions validated once, with their water chemistry (frozen).
+
+    Made by :meth:`SurfaceFit.prepare_conditions` and used by
+    :meth:`SurfaceFit.rate_draws_per_s`, so that evaluating many batches of
+    parameter draws at the same conditions computes [H+] and [OH-] once.
+
+    Attributes
+    ----------
+    temperature_K : numpy.ndarray
+        Temperatures of the flattened conditions [K], shape (n,).
+    ln_concentrations : numpy.ndarray
+        ln [H+], 0 and ln [OH-] per condition (concentrations in mol/L),
+        shape (n, 3), in :data:`PATHWAYS` order.
+    """
+
+    temperature_K: np.ndarray
+    ln_concentrations: np.ndarray
+
+    @property
+    def n_conditions(self) -> int:
+        """Number of conditions."""
+        return int(self.temperature_K.size)
+
+
+@dataclass(frozen=True, eq=False)
 class SurfaceFit:
     """A fitted pH-temperature rate surface (frozen).
 
@@ -925,6 +952,74 @@ class SurfaceFit:
             return _logsumexp_terms(self._draw_terms(T, lnc, params))
         terms, _, _, shape, _ = self._terms(temperature_K, pH, ionic_strength_M, salinity, None)
         return _logsumexp(terms, axis=1).reshape(shape)
+
+    def prepare_conditions(
+        self, temperature_K: Any, pH: Any, ionic_strength_M: Any = 0.0, salinity: Any = 0.0
+    ) -> PreparedConditions:
+        """Validate conditions and evaluate their water chemistry once.
+
+        Parameters
+        ----------
+        temperature_K, pH, ionic_strength_M, salinity : array_like
+            Conditions as for :meth:`ln_k` (broadcast, then flattened).
+
+        Returns
+        -------
+        PreparedConditions
+            For :meth:`rate_draws_per_s`.
+        """
+        T, ph, ionic, sal, _ = _conditions(temperature_K, pH, ionic_strength_M, salinity)
+        lnc = _ln_concentrations(T, ph, ionic, sal)
+        return PreparedConditions(temperature_K=_readonly(T), ln_concentrations=_readonly(lnc))
+
+    def rate_draws_per_s(self, prepared: PreparedConditions, parameters: Any) -> np.ndarray:
+        """k_obs [1/s] for many parameter sets at prepared conditions.
+
+        The same numbers as ``exp(ln_k(..., parameters=parameters))`` (to
+        rounding, about 1e-15 relative), without the logarithm and its
+        exponential: the pathway terms are summed as plain exponentials.
+
+        Parameters
+        ----------
+        prepared : PreparedConditions
+            From :meth:`prepare_conditions`.
+        parameters : array_like
+            Parameter sets, shape (n_draws, n_params), in the units of
+            :attr:`parameter_names`.
+
+        Returns
+        -------
+        numpy.ndarray
+            Shape (n_draws, n_conditions).
+
+        Raises
+        ------
+        InputError
+            If ``prepared`` is not a PreparedConditions or the parameters have
+            the wrong shape or are not finite.
+        DataError
+            If a draw gives a rate constant outside exp(-700) to exp(700) 1/s.
+        """
+        if not isinstance(prepared, PreparedConditions):
+            raise InputError(
+                "prepared must come from SurfaceFit.prepare_conditions(...), got "
+                f"{type(prepared).__name__}"
+            )
+        params = self._check_parameters(parameters)
+        terms = self._draw_terms(prepared.temperature_K, prepared.ln_concentrations, params)
+        with np.errstate(over="ignore", under="ignore"):
+            total = np.exp(terms[0])
+            tmp = np.empty_like(total)
+            for t in terms[1:]:
+                np.exp(t, out=tmp)
+                total += tmp
+        lo, hi = math.exp(-_LN_DIRECT_LIMIT), math.exp(_LN_DIRECT_LIMIT)
+        if total.size and not (lo <= float(total.min()) and float(total.max()) <= hi):
+            raise DataError(
+                "some parameter draws give a rate constant outside exp(-700) to exp(700) 1/s; "
+                "the fit is too uncertain at these conditions"
+            )
+        return total
 
     def rate_per_s(
         self,
