@@ -99,6 +99,9 @@ INTEGRATION_RULE = (
 )
 
 _MIN_DRAWS = 100
+# smallest rate constant of a parameter draw [1/s], exp(-690) (ln k >= -690 as for
+# models evaluated through ln k)
+_K_MIN_DRAW = math.exp(-690.0)
 _DRAW_CHUNK_ELEMENTS = 2_000_000
 _LN2 = math.log(2.0)
 _LN10 = math.log(10.0)
@@ -1164,23 +1167,47 @@ def run_scenario(
             for kind in (("confidence", "prediction") if sigma is not None else ("confidence",))
         }
         t_arg, ph_arg, i_arg, s_arg = _conditions_args(cond_all)
+        too_uncertain = (
+            f"scenario {scenario.name!r}: some parameter draws give no finite rate "
+            "constant; the fit is too uncertain for a Monte Carlo band"
+        )
+        # a model that can evaluate its water chemistry once for all chunks of draws
+        # (kinetics.surface.SurfaceFit) gives k directly; others give ln k per chunk
+        prepared = None
+        if callable(getattr(model, "prepare_conditions", None)) and callable(
+            getattr(model, "rate_draws_per_s", None)
+        ):
+            prepared = model.prepare_conditions(
+                t_arg, ph_arg, ionic_strength_M=i_arg, salinity=s_arg
+            )
         for start in range(0, n_draws, chunk):
             p = params[start : start + chunk]
-            lk = np.asarray(
-                model.ln_k(t_arg, ph_arg, ionic_strength_M=i_arg, salinity=s_arg, parameters=p),
-                dtype=float,
-            )
-            if lk.shape != (p.shape[0], n_eval):
-                raise DataError(
-                    f"ln_k with {p.shape[0]} parameter draws returned shape {lk.shape}, "
-                    f"expected ({p.shape[0]}, {n_eval})"
+            if prepared is not None:
+                try:
+                    k_draws = np.asarray(model.rate_draws_per_s(prepared, p), dtype=float)
+                except DataError:
+                    raise DataError(too_uncertain) from None
+                what = "rate_draws_per_s"
+            else:
+                lk = np.asarray(
+                    model.ln_k(t_arg, ph_arg, ionic_strength_M=i_arg, salinity=s_arg,
+                               parameters=p),
+                    dtype=float,
                 )
-            if not np.all(np.isfinite(lk)) or np.any(lk > 700.0) or np.any(lk < -690.0):
+                k_draws = lk
+                what = "ln_k"
+            if k_draws.shape != (p.shape[0], n_eval):
                 raise DataError(
-                    f"scenario {scenario.name!r}: some parameter draws give no finite rate "
-                    "constant; the fit is too uncertain for a Monte Carlo band"
+                    f"{what} with {p.shape[0]} parameter draws returned shape "
+                    f"{k_draws.shape}, expected ({p.shape[0]}, {n_eval})"
                 )
-            cum_d, k_d = _cumulative(np.exp(lk), grid)
+            if prepared is None:
+                if not np.all(np.isfinite(lk)) or np.any(lk > 700.0) or np.any(lk < -690.0):
+                    raise DataError(too_uncertain)
+                k_draws = np.exp(lk)
+            elif not np.all(np.isfinite(k_draws)) or np.any(k_draws < _K_MIN_DRAW):
+                raise DataError(too_uncertain)
+            cum_d, k_d = _cumulative(k_draws, grid)
             for kind in acc:
                 scale = (
                     np.exp(offsets[start : start + chunk])

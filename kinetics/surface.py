@@ -1519,7 +1519,8 @@ class _Candidate:
 
         Steps solve :math:`(J^T J + \\lambda D)\\,\\delta = -J^T r` with :math:`D` the
         running maximum of diag(J^T J) (Marquardt, J. SIAM 11 (1963) 431-441;
-        the scaling of Moré, Lecture Notes in Mathematics 630 (1978) 105-116);
+        the scaling of Moré, in Numerical Analysis, ed. G. A. Watson, Springer LNM 630
+        (1978) 105-116);
         :math:`\\lambda` follows the gain ratio of actual to predicted decrease
         (Nielsen, IMM-REP-1999-05, Technical University of Denmark). Stops when
         both the actual and the predicted relative decrease of the sum of

@@ -450,3 +450,65 @@ def test_real_surface_band_at_constant_conditions_matches_prediction_intervals(f
     assert_allclose(res.fraction_ci_high, np.exp(-k["k_ci_low_per_s"] * times), rtol=5e-3)
     assert_allclose(res.fraction_pi_low, np.exp(-k["k_pi_high_per_s"] * times), rtol=5e-3)
     assert_allclose(res.fraction_pi_high, np.exp(-k["k_pi_low_per_s"] * times), rtol=5e-3)
+
+
+class _ThroughLnK:
+    """The fitted surface seen only through the RateModel protocol (ln k per chunk)."""
+
+    def __init__(self, fit):
+        self._fit = fit
+        for name in ("dof", "estimates", "residual_scale", "temperature_range_K", "pH_range",
+                     "ea_from_prior", "uncharacterised_pathways"):
+            setattr(self, name, getattr(fit, name))
+
+    def ln_k(self, *args, **kwargs):
+        return self._fit.ln_k(*args, **kwargs)
+
+    def sample_parameters(self, n, rng):
+        return self._fit.sample_parameters(n, rng)
+
+
+@pytest.mark.parametrize("salinity", [0.0, 12.0])
+def test_precomputed_water_chemistry_gives_the_numbers_of_ln_k(fitted_surface, salinity):
+    sc = Scenario(
+        "Seasonal estuary (invented)",
+        temperature_K=(AnnualCycle(287.0, 8.0, 200.0), DailyCycle(0.0, 2.0, 15.0)),
+        pH=DailyCycle(8.0, 0.4, 16.0),
+        salinity=salinity,
+    )
+    times = np.array([0.0, 30.0, 90.0, 365.0]) * DAY_S
+    fast = run_scenario(fitted_surface, sc, output_time_s=times, n_draws=500, seed=4)
+    slow = run_scenario(_ThroughLnK(fitted_surface), sc, output_time_s=times, n_draws=500, seed=4)
+    for name in ("fraction_ci_low", "fraction_ci_high", "fraction_pi_low", "fraction_pi_high",
+                 "fraction_remaining"):
+        assert_allclose(getattr(fast, name), getattr(slow, name), rtol=1e-12, atol=0,
+                        err_msg=name)
+    for kind in ("confidence", "prediction"):
+        a, b = fast.interval(0.9, kind), slow.interval(0.9, kind)
+        assert_allclose(a.fraction_low, b.fraction_low, rtol=1e-12, atol=0)
+        assert_allclose(a.fraction_high, b.fraction_high, rtol=1e-12, atol=0)
+        for name in ("dt50_low_s", "dt50_high_s", "dt90_low_s", "dt90_high_s",
+                     "effective_k_low_per_s", "effective_k_high_per_s"):
+            x, y = getattr(a, name), getattr(b, name)
+            assert (x is None) == (y is None), name
+            if x is not None:
+                assert_allclose(x, y, rtol=1e-12, atol=0, err_msg=name)
+
+
+def test_rate_draws_equal_exp_of_ln_k_and_refuse_foreign_conditions(fitted_surface):
+    from kinetics.errors import DataError
+
+    T = np.array([280.0, 298.15, 315.0])
+    ph = np.array([5.0, 7.5, 9.5])
+    draws = fitted_surface.sample_parameters(50, np.random.default_rng(6))
+    prepared = fitted_surface.prepare_conditions(T, ph, salinity=5.0)
+    k = fitted_surface.rate_draws_per_s(prepared, draws)
+    ref = np.exp(fitted_surface.ln_k(T, ph, salinity=5.0, parameters=draws))
+    assert k.shape == (50, 3) and prepared.n_conditions == 3
+    assert_allclose(k, ref, rtol=1e-13, atol=0)
+    with pytest.raises(InputError, match="prepare_conditions"):
+        fitted_surface.rate_draws_per_s((T, ph), draws)
+    absurd = np.array(fitted_surface.estimates, dtype=float)[None, :].copy()
+    absurd[0, 0::2] = 800.0  # ln k_ref far beyond any representable rate
+    with pytest.raises(DataError, match="exp\\(700\\)"):
+        fitted_surface.rate_draws_per_s(prepared, absurd)
