@@ -49,6 +49,9 @@ class Settings(BaseSettings):
     )
     anonymous_read: bool = False
     api_key_pepper: str = Field(default="", repr=False)  # server secret in key hashes (service.security)
+    #: how long a process remembers a verified API key [s]; also the longest time a key
+    #: revoked in another process (worker, command line) may still work here. 0: never
+    key_cache_ttl_s: float = Field(default=2.0, ge=0, le=60)
     idempotency_ttl_s: float = Field(default=24 * 3600.0, gt=0)
     sqlite_busy_timeout_ms: int = Field(default=30_000, ge=0)
     run_migrations_on_startup: bool = True

@@ -7,9 +7,10 @@ so the first answer and every later cached answer carry identical numbers.
 
 Each process also keeps the most recently used restored fits in memory (per database),
 keyed by the stored fit's row id and time as well as substance, data version and options.
-Every request still reads the data version and the id of the stored fit (two small
-indexed queries), so a new or withdrawn run, or another process's refit, is seen at once;
-only the JSON parsing and the rebuilding of the fit are saved.
+Every request still reads the current run version ids and the ids of the most recent
+stored fits for these options (one small indexed query), so a new, superseded or withdrawn
+run, or another process's refit, is seen at once; only the JSON parsing and the rebuilding
+of the fit are saved.
 """
 
 from __future__ import annotations
@@ -21,12 +22,14 @@ import weakref
 from collections import OrderedDict
 from dataclasses import dataclass
 
+from sqlalchemy import Integer, String, text
 from sqlalchemy.orm import Session, sessionmaker
 
 from kinetics.surface import SurfaceFit
 from service import crud
 from service.db import session_scope
 from service.fitting import FitResult, compute_fit, options_key, run_input_from_model
+from service.models import FitCache, Run, UTCDateTime
 from service.schemas import FitOptions
 
 __all__ = ["StoredModel", "load_model"]
@@ -98,6 +101,54 @@ def _restored_fits(factory: sessionmaker[Session]) -> _RestoredFits:
         return cache
 
 
+#: stored fits of a substance and options looked at beside the run ids (most recent first)
+RECENT_FITS_CHECKED = 4
+
+# Written out once as text: building the equivalent expression (and its cache key) on
+# every request costs several times more than running it.
+_CURRENT_VERSION_AND_FITS = text(
+    f"SELECT 1 AS is_fit, recent.id AS row_id, recent.created_at AS created_at, "
+    f"recent.data_version AS data_version FROM ("
+    f"SELECT id, created_at, data_version FROM {FitCache.__tablename__} "
+    f"WHERE substance_id = :substance_id AND options_key = :options_key "
+    f"ORDER BY id DESC LIMIT {RECENT_FITS_CHECKED}) AS recent "
+    f"UNION ALL "
+    f"SELECT 0, id, NULL, NULL FROM {Run.__tablename__} "
+    f"WHERE substance_id = :substance_id AND status = 'current'"
+).columns(is_fit=Integer(), row_id=Integer(), created_at=UTCDateTime(), data_version=String())
+
+
+def _current_version_and_fit(
+    session: Session, *, substance_id: int, options_key: str
+) -> tuple[str, tuple[int, dt.datetime] | None]:
+    """Data version of the current runs and ``(id, time)`` of the stored fit for it, if any.
+
+    One round trip: the current run version ids and the few most recent stored fits for
+    these options, in one ``UNION ALL``. Only when the matching fit is older than those
+    does a second query look it up.
+    """
+    run_ids: list[int] = []
+    fits: list[tuple[int, dt.datetime, str]] = []
+    rows = session.execute(
+        _CURRENT_VERSION_AND_FITS,
+        {"substance_id": int(substance_id), "options_key": options_key},
+    )
+    for is_fit, row_id, created_at, data_version in rows:
+        if int(is_fit):
+            fits.append((int(row_id), created_at, data_version))
+        else:
+            run_ids.append(int(row_id))
+    version = crud.data_version_of(substance_id=substance_id, run_version_ids=run_ids)
+    for fit_id, created_at, data_version in fits:
+        if data_version == version:
+            return version, (fit_id, created_at)
+    if len(fits) < RECENT_FITS_CHECKED:
+        return version, None  # every stored fit for these options was looked at
+    return version, crud.cached_fit_ref(
+        session, substance_id=substance_id, data_version=version, options_key=options_key
+    )
+
+
 def _check_as_of(as_of: dt.datetime) -> dt.datetime:
     """``as_of`` in UTC; refuse a time without zone or one in the future."""
     from kinetics.errors import InputError
@@ -139,13 +190,15 @@ def load_model(
         runs = None
         if as_of is None:
             # ids only: on a cache hit the observations are never loaded
-            version = crud.data_version(session, substance_id=substance_id)
+            version, ref = _current_version_and_fit(
+                session, substance_id=substance_id, options_key=key
+            )
         else:
             runs = crud.runs_as_of(session, substance_id=substance_id, as_of=as_of)
             version = crud.data_version_of(substance_id=substance_id, run_version_ids=[r.id for r in runs])
-        ref = crud.cached_fit_ref(
-            session, substance_id=substance_id, data_version=version, options_key=key
-        )
+            ref = crud.cached_fit_ref(
+                session, substance_id=substance_id, data_version=version, options_key=key
+            )
         if ref is not None:
             hit = restored.get((substance_id, version, key, ref))
             if hit is not None:

@@ -24,6 +24,13 @@ A missing, unknown, malformed or revoked key is a 401; a valid key without the s
 operation needs is a 403. Both carry the same message, so a caller learns nothing beyond
 the status code. When the setting ``anonymous_read`` is on, a request *without* any key
 may read; a request that presents a bad key is still refused.
+
+Each process remembers the keys it has verified (by hash) for ``key_cache_ttl_s`` seconds
+(setting ``FIELDRATE_KEY_CACHE_TTL_S``, 2 s by default, 0 turns it off), so a busy client
+does not cost a database lookup per request. A revocation made in the same process takes
+effect at once; in *another* process (another worker, the command line) a revoked key may
+still work for at most ``key_cache_ttl_s`` seconds. Unknown keys are never remembered, so a
+new key works at once everywhere.
 """
 
 from __future__ import annotations
@@ -31,13 +38,16 @@ from __future__ import annotations
 import hashlib
 import hmac
 import secrets
+import threading
+import time
+import weakref
 from collections.abc import Callable, Iterable, Mapping
 from dataclasses import dataclass
 from typing import Annotated, Optional
 
 from fastapi import Depends, Request
 from fastapi.security import APIKeyHeader, HTTPAuthorizationCredentials, HTTPBearer
-from sqlalchemy import select
+from sqlalchemy import event, select
 from sqlalchemy.orm import Session
 
 from service.errors import Conflict, NotFound, ServiceError
@@ -60,6 +70,7 @@ __all__ = [
     "list_api_keys",
     "revoke_api_key",
     "authenticate",
+    "forget_verified_keys",
     "principal_for_request",
     "KeyCheckMiddleware",
     "install_key_check",
@@ -292,6 +303,10 @@ def revoke_api_key(
         )
     row.revoked_at = utcnow()
     session.flush()
+    # forget verified keys now and again once the revocation is committed, so that a
+    # lookup racing with the commit cannot keep the key alive in this process
+    forget_verified_keys()
+    event.listen(session, "after_commit", lambda _s: forget_verified_keys(), once=True)
     record_audit(
         session, actor=actor, entity="api_key", entity_id=row.id, action="revoke",
         reason=reason or f"label {row.label!r}",
@@ -314,6 +329,74 @@ def authenticate(session: Session, secret: str, *, pepper: str = "") -> Optional
     )
 
 
+# --------------------------------------------------------------------------- verified keys
+#: verified keys remembered per database, at most this many (the oldest go first)
+VERIFIED_KEYS_PER_DATABASE = 1024
+
+
+class _VerifiedKeys:
+    """Thread-safe map: key hash -> (valid key, monotonic expiry time [s])."""
+
+    def __init__(self) -> None:
+        self._items: dict[str, tuple[AuthenticatedKey, float]] = {}
+        self._lock = threading.Lock()
+
+    def get(self, digest: str) -> Optional[AuthenticatedKey]:
+        item = self._items.get(digest)
+        if item is None:
+            return None
+        if item[1] <= time.monotonic():
+            with self._lock:
+                self._items.pop(digest, None)
+            return None
+        return item[0]
+
+    def put(self, key: AuthenticatedKey, ttl_s: float, epoch: int) -> None:
+        with self._lock:
+            if epoch != _epoch[0]:  # a revocation happened while the key was looked up
+                return
+            if len(self._items) >= VERIFIED_KEYS_PER_DATABASE:
+                self._items.pop(next(iter(self._items)))
+            self._items[key.key_hash] = (key, time.monotonic() + ttl_s)
+
+    def clear(self) -> None:
+        with self._lock:
+            self._items.clear()
+
+
+_VERIFIED: "weakref.WeakKeyDictionary[object, _VerifiedKeys]" = weakref.WeakKeyDictionary()
+_VERIFIED_LOCK = threading.Lock()
+#: bumped by every revocation in this process; a lookup begun before it is not remembered
+_epoch = [0]
+
+
+def _verified_keys(factory) -> _VerifiedKeys:
+    cache = _VERIFIED.get(factory)
+    if cache is None:
+        with _VERIFIED_LOCK:
+            cache = _VERIFIED.get(factory)
+            if cache is None:
+                cache = _VERIFIED[factory] = _VerifiedKeys()
+    return cache
+
+
+def forget_verified_keys() -> None:
+    """Drop every remembered verified key of this process (called on revocation)."""
+    with _VERIFIED_LOCK:
+        _epoch[0] += 1
+        caches = list(_VERIFIED.values())
+    for cache in caches:
+        cache.clear()
+
+
+def _remembered(factory, secret: str, pepper: str, ttl_s: float) -> Optional[KeyCheck]:
+    """The check of ``secret`` from the verified keys, or None when it must be looked up."""
+    if ttl_s <= 0 or not secret or len(secret) > _MAX_CREDENTIAL_CHARS:
+        return None
+    key = _verified_keys(factory).get(hash_secret(secret, pepper))
+    return None if key is None else KeyCheck(presented=True, key=key)
+
+
 # --------------------------------------------------------------------------- middleware
 #: key of the ASGI scope entry where :class:`KeyCheckMiddleware` leaves its result
 SCOPE_KEY = "fieldrate.api_key"
@@ -327,9 +410,13 @@ class KeyCheck:
     key: Optional[AuthenticatedKey]
 
 
-def _check_with_factory(factory, secret: str, pepper: str) -> KeyCheck:
+def _check_with_factory(factory, secret: str, pepper: str, ttl_s: float = 0.0) -> KeyCheck:
+    epoch = _epoch[0]
     with factory() as session:
-        return KeyCheck(presented=True, key=authenticate(session, secret, pepper=pepper))
+        key = authenticate(session, secret, pepper=pepper)
+    if key is not None and ttl_s > 0:
+        _verified_keys(factory).put(key, ttl_s, epoch)
+    return KeyCheck(presented=True, key=key)
 
 
 class KeyCheckMiddleware:
@@ -338,7 +425,8 @@ class KeyCheckMiddleware:
     The result goes into the ASGI scope (:data:`SCOPE_KEY`), where
     :func:`principal_for_request` and the idempotency middleware read it. Doing it here,
     in a short session of its own, means no handler ever needs a second database
-    connection while it holds a write transaction.
+    connection while it holds a write transaction. A key verified within the last
+    ``key_cache_ttl_s`` seconds is taken from memory, without leaving the event loop.
     """
 
     def __init__(self, app):
@@ -356,14 +444,19 @@ class KeyCheckMiddleware:
                 scope[SCOPE_KEY] = KeyCheck(presented=False, key=None)
             else:
                 app = scope["app"]
-                try:
-                    scope[SCOPE_KEY] = await run_in_threadpool(
-                        _check_with_factory, app.state.session_factory, secret,
-                        app.state.settings.api_key_pepper,
-                    )
-                except OperationalError:
-                    await send_unavailable(send)
-                    return
+                factory = app.state.session_factory
+                settings = app.state.settings
+                pepper, ttl_s = settings.api_key_pepper, settings.key_cache_ttl_s
+                check = _remembered(factory, secret, pepper, ttl_s)
+                if check is None:
+                    try:
+                        check = await run_in_threadpool(
+                            _check_with_factory, factory, secret, pepper, ttl_s
+                        )
+                    except OperationalError:
+                        await send_unavailable(send)
+                        return
+                scope[SCOPE_KEY] = check
         await self.app(scope, receive, send)
 
 
@@ -400,7 +493,7 @@ _x_api_key = APIKeyHeader(
 )
 
 
-def principal_for_request(
+async def principal_for_request(
     request: Request,
     _bearer_doc: Annotated[Optional[HTTPAuthorizationCredentials], Depends(_bearer)] = None,
     _header_doc: Annotated[Optional[str], Depends(_x_api_key)] = None,
@@ -409,19 +502,25 @@ def principal_for_request(
 
     Without any key the principal is anonymous (no scopes, or ``read`` when the setting
     ``anonymous_read`` is on); :func:`require_scope` refuses it where a scope is needed.
+    Asynchronous because it normally only reads what :class:`KeyCheckMiddleware` found,
+    so it runs on the event loop instead of costing a thread hand-off.
     """
     from service.deps import Principal
 
     settings = request.app.state.settings
     check = request.scope.get(SCOPE_KEY)
     if check is None:  # the app was built without KeyCheckMiddleware
+        from starlette.concurrency import run_in_threadpool
+
         secret = credential_from_headers(request.headers)
-        check = (
-            KeyCheck(presented=False, key=None) if secret is None
-            else _check_with_factory(
-                request.app.state.session_factory, secret, settings.api_key_pepper
+        factory = request.app.state.session_factory
+        pepper, ttl_s = settings.api_key_pepper, settings.key_cache_ttl_s
+        if secret is None:
+            check = KeyCheck(presented=False, key=None)
+        else:
+            check = _remembered(factory, secret, pepper, ttl_s) or await run_in_threadpool(
+                _check_with_factory, factory, secret, pepper, ttl_s
             )
-        )
     if not check.presented:
         scopes = frozenset({"read"}) if settings.anonymous_read else frozenset()
         return Principal(label=ANONYMOUS_LABEL, scopes=scopes)
@@ -439,7 +538,7 @@ def require_scope(scope: str) -> Callable[..., object]:
     if scope not in SCOPES:
         raise ValueError(f"unknown scope {scope!r}; valid scopes are {', '.join(SCOPES)}")
 
-    def _dependency(principal=Depends(principal_for_request)):
+    async def _dependency(principal=Depends(principal_for_request)):
         if scope in principal.scopes:
             return principal
         if principal.label == ANONYMOUS_LABEL:

@@ -18,7 +18,8 @@ from kinetics.errors import InputError
 from service.cli import main as cli_main
 from service.config import Settings
 from service.main import create_app
-from service.models import ApiKey, AuditEvent, Run
+from service.db import make_engine, session_scope
+from service.models import ApiKey, AuditEvent, Run, utcnow
 from service.security import (
     DENIED_MESSAGE,
     KEY_PREFIX,
@@ -156,6 +157,57 @@ def test_writes_are_never_anonymous_even_with_anonymous_reads(db_url):
 def test_anonymous_reads_are_off_by_default(anon):
     _denied(anon.get("/v1/substances"), 401)
     assert anon.get("/health").status_code == 200
+
+
+def _revoke_behind_the_service(db_url: str, secret: str) -> None:
+    """Revoke a key with plain SQL on an engine of its own, as another process would."""
+    from sqlalchemy import update
+
+    engine = make_engine(db_url)
+    try:
+        with engine.begin() as conn:
+            conn.execute(update(ApiKey).where(ApiKey.key_hash == hash_secret(secret))
+                         .values(revoked_at=utcnow()))
+    finally:
+        engine.dispose()
+
+
+def test_a_key_revoked_by_the_command_line_in_this_process_is_refused_at_once(db_url, capsys):
+    app = create_app(Settings(database_url=db_url, key_cache_ttl_s=60.0))
+    with TestClient(app, raise_server_exceptions=False) as c:
+        secret = _key(app, "read")
+        assert c.get("/v1/substances", headers=_bearer(secret)).status_code == 200  # remembered
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore")
+            assert cli_main(["keys", "revoke", "1", "--database-url", db_url]) == 0
+        _denied(c.get("/v1/substances", headers=_bearer(secret)), 401)
+
+
+def test_a_key_revoked_elsewhere_is_refused_at_once_without_the_key_cache(db_url):
+    app = create_app(Settings(database_url=db_url, key_cache_ttl_s=0))
+    with TestClient(app, raise_server_exceptions=False) as c:
+        secret = _key(app, "read")
+        assert c.get("/v1/substances", headers=_bearer(secret)).status_code == 200
+        _revoke_behind_the_service(db_url, secret)
+        _denied(c.get("/v1/substances", headers=_bearer(secret)), 401)
+
+
+def test_a_verified_key_is_remembered_and_an_unknown_one_is_not(db_url):
+    # a revocation made outside this process is seen only after key_cache_ttl_s (60 s
+    # here, far longer than the test): the documented bound, not a timing measurement
+    app = create_app(Settings(database_url=db_url, key_cache_ttl_s=60.0))
+    with TestClient(app, raise_server_exceptions=False) as c:
+        secret = _key(app, "read")
+        assert c.get("/v1/substances", headers=_bearer(secret)).status_code == 200
+        _revoke_behind_the_service(db_url, secret)
+        assert c.get("/v1/substances", headers=_bearer(secret)).status_code == 200
+        # a key unknown at first works as soon as it exists: refusals are never remembered
+        late = generate_secret()
+        _denied(c.get("/v1/substances", headers=_bearer(late)), 401)
+        with session_scope(app.state.session_factory, write=True) as session:
+            session.add(ApiKey(label="late (invented)", key_hash=hash_secret(late),
+                               scopes="read", created_at=utcnow()))
+        assert c.get("/v1/substances", headers=_bearer(late)).status_code == 200
 
 
 def test_a_key_made_with_another_pepper_does_not_work(db_url):

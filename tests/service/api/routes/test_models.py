@@ -217,3 +217,29 @@ def test_series_runs_with_a_reported_rate_without_se_give_a_model_naming_it(clie
     assert min(series_se) <= m["se_imputed_ln_k"] <= max(series_se)
     diag = next(d for d in m["runs"] if d["run_uid"] == uid)
     assert diag["se_ln_k"] is None and diag["status"] == "fitted"
+
+
+def test_cached_fit_found_behind_newer_fits_of_past_data_versions(client):
+    import datetime as dt
+
+    sid, study = make_study(client)
+    wobble = (0.01, -0.02, 0.015, -0.01, 0.02)
+    moments = []
+    for i, (t, k) in enumerate(((30.0, 0.03), (40.0, 0.08), (50.0, 0.2), (60.0, 0.45),
+                                (70.0, 1.0), (45.0, 0.13), (35.0, 0.05))):
+        r = client.post("/v1/runs", json=series_run_body(study, temperature_C=t, conc=_sfo_conc(k, wobble)))
+        assert r.status_code == 201, r.text
+        if i >= 2:
+            moments.append(dt.datetime.now(dt.timezone.utc).isoformat())
+    current = client.get(f"/v1/substances/{sid}/model").json()
+    # fits of four past data versions are stored after the current one
+    for moment in moments[:-1]:  # 3, 4, 5 and 6 runs
+        past = client.get(f"/v1/substances/{sid}/model", params={"as_of": moment})
+        assert past.status_code == 200, past.text
+        assert past.json()["data_version"] != current["data_version"]
+    again = client.get(f"/v1/substances/{sid}/model").json()
+    assert again["cached"] is True
+    assert (again["data_version"], again["fitted_at"]) == (current["data_version"], current["fitted_at"])
+    client.post("/v1/runs", json=series_run_body(study, temperature_C=55.0, conc=_sfo_conc(0.3, wobble)))
+    fresh = client.get(f"/v1/substances/{sid}/model").json()
+    assert fresh["cached"] is False and fresh["n_measurements"] == 8
