@@ -22,7 +22,7 @@ import weakref
 from collections import OrderedDict
 from dataclasses import dataclass
 
-from sqlalchemy import Integer, String, text
+from sqlalchemy import Connection, Integer, String, text
 from sqlalchemy.orm import Session, sessionmaker
 
 from kinetics.surface import SurfaceFit
@@ -119,11 +119,11 @@ _CURRENT_VERSION_AND_FITS = text(
 
 
 def _current_version_and_fit(
-    session: Session, *, substance_id: int, options_key: str
+    session: Session | Connection, *, substance_id: int, options_key: str
 ) -> tuple[str, tuple[int, dt.datetime] | None]:
     """Data version of the current runs and ``(id, time)`` of the stored fit for it, if any.
 
-    One round trip: the current run version ids and the few most recent stored fits for
+    ``session`` is a session or a plain connection. One round trip: the current run version ids and the few most recent stored fits for
     these options, in one ``UNION ALL``. Only when the matching fit is older than those
     does a second query look it up.
     """
@@ -186,6 +186,21 @@ def load_model(
         as_of = _check_as_of(as_of)
     key = options_key(options.model_dump(mode="json"))
     restored = _restored_fits(factory)
+    engine = factory.kw.get("bind")
+    if as_of is None and engine is not None:
+        # the common case, a fit restored in this process, needs no ORM session
+        with engine.connect() as conn:
+            version, ref = _current_version_and_fit(
+                conn, substance_id=substance_id, options_key=key
+            )
+            conn.rollback()
+        if ref is not None:
+            hit = restored.get((substance_id, version, key, ref))
+            if hit is not None:
+                return StoredModel(
+                    result=hit[1], substance_id=substance_id, substance_name=hit[0],
+                    data_version=version, fitted_at=ref[1], cached=True,
+                )
     with factory() as session:
         runs = None
         if as_of is None:
