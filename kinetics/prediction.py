@@ -63,6 +63,7 @@ Flags (boolean arrays, one entry per condition)
 
 from __future__ import annotations
 
+import functools
 import math
 from dataclasses import dataclass
 from typing import Any, Mapping
@@ -227,7 +228,7 @@ class Prediction:
             else:
                 lo, hi = self.k_pi_low_per_s, self.k_pi_high_per_s
         elif self.method == "delta":
-            tq = float(stats.t.ppf(0.5 + lv / 2.0, self.dof))
+            tq = _t_quantile(0.5 + lv / 2.0, int(self.dof))
             se = self.se_ln_k
             if kind == "prediction":
                 se = np.sqrt(se**2 + self.residual_scale**2)
@@ -248,6 +249,17 @@ class Prediction:
             dt90_low_s=_LN10 / hi,
             dt90_high_s=_LN10 / lo,
         )
+
+
+@functools.lru_cache(maxsize=256)
+def _t_quantile(probability: float, dof: int) -> float:
+    """Student's t quantile, remembered per (probability, degrees of freedom).
+
+    A fitted surface has one ``dof`` and requests use a handful of levels, so
+    the quantile (tens of microseconds in :func:`scipy.stats.t.ppf`) is
+    computed once instead of once per prediction.
+    """
+    return float(stats.t.ppf(probability, dof))
 
 
 def _readonly(arr: np.ndarray, shape: tuple[int, ...]) -> np.ndarray:
@@ -339,7 +351,7 @@ def predict(
     dof = int(surface.dof)
 
     if method == "delta":
-        tq = float(stats.t.ppf(0.5 + lv / 2.0, dof))
+        tq = _t_quantile(0.5 + lv / 2.0, dof)
         half_ci = tq * se
         half_pi = tq * np.sqrt(se * se + rs * rs)
         ci_lo, ci_hi = lnk - half_ci, lnk + half_ci

@@ -597,6 +597,16 @@ def _conditions(
     flat = [np.broadcast_to(a, shape).ravel() for a in arrays]
     if flat[0].size == 0:
         raise InputError("no conditions given: the arrays are empty")
+    T, ph, ionic, sal = flat
+    # one pass over all four arrays for the usual case of valid conditions;
+    # the checks below only run to name the first bad value
+    ok = (
+        (T >= units.LIQUID_WATER_MIN_K) & (T <= units.LIQUID_WATER_MAX_K)
+        & (ph >= units.PH_MIN) & (ph <= units.PH_MAX)
+        & (ionic >= 0.0) & (ionic < math.inf) & (sal >= 0.0) & (sal < math.inf)
+    )
+    if ok.all():
+        return T, ph, ionic, sal, tuple(shape)
     names = ("temperature_K", "pH", "ionic_strength_M", "salinity")
     for name, arr in zip(names, flat):
         bad = ~np.isfinite(arr)
@@ -648,8 +658,17 @@ def _index(i: int, shape: tuple[int, ...]) -> Any:
 def _ln_concentrations(
     T: np.ndarray, ph: np.ndarray, ionic: np.ndarray, sal: np.ndarray
 ) -> np.ndarray:
-    """ln of the concentration factor of each pathway, shape (n, 3)."""
-    h, oh = water.hydronium_hydroxide_molar(ph, T, ionic, sal)
+    """ln of the concentration factor of each pathway, shape (n, 3).
+
+    The conditions come from :func:`_conditions` (flat, finite, temperature
+    and pH in range); fresh water within the Davies range goes straight to the
+    water-chemistry formulas, anything else through
+    :func:`kinetics.water.hydronium_hydroxide_molar` and its checks.
+    """
+    if not sal.any() and (ionic <= water.DAVIES_MAX_IONIC_STRENGTH_M).all():
+        h, oh = water._fresh_water_h_oh(ph, T, ionic)
+    else:
+        h, oh = water.hydronium_hydroxide_molar(ph, T, ionic, sal)
     out = np.zeros((T.size, 3))
     out[:, 0] = np.log(np.asarray(h, dtype=float).ravel())
     out[:, 2] = np.log(np.asarray(oh, dtype=float).ravel())

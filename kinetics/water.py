@@ -182,7 +182,12 @@ def water_density_kg_m3(temperature_K: Any) -> Any:
     InputError
         If a temperature is not finite or outside 273.15-373.15 K.
     """
-    t = _pure_water_temperature(temperature_K) - ZERO_CELSIUS_K
+    return _out(_kell_density(_pure_water_temperature(temperature_K)))
+
+
+def _kell_density(T: np.ndarray) -> np.ndarray:
+    """Kell's density [kg/m³] at temperatures [K] already checked (no range checks)."""
+    t = T - ZERO_CELSIUS_K
     num = (
         999.83952
         + t * (16.945176
@@ -191,7 +196,7 @@ def water_density_kg_m3(temperature_K: Any) -> Any:
                              + t * (105.56302e-9
                                     + t * (-280.54253e-12)))))
     )
-    return _out(num / (1.0 + 16.879850e-3 * t))
+    return num / (1.0 + 16.879850e-3 * t)
 
 
 def water_dielectric_constant(temperature_K: Any) -> Any:
@@ -216,8 +221,13 @@ def water_dielectric_constant(temperature_K: Any) -> Any:
     numpy.float64 or numpy.ndarray
         Relative permittivity [-].
     """
-    t = _pure_water_temperature(temperature_K) - ZERO_CELSIUS_K
-    return _out(87.740 + t * (-0.40008 + t * (9.398e-4 + t * (-1.410e-6))))
+    return _out(_malmberg_maryott(_pure_water_temperature(temperature_K)))
+
+
+def _malmberg_maryott(T: np.ndarray) -> np.ndarray:
+    """Relative permittivity at temperatures [K] already checked (no range checks)."""
+    t = T - ZERO_CELSIUS_K
+    return 87.740 + t * (-0.40008 + t * (9.398e-4 + t * (-1.410e-6)))
 
 
 #: Ion-product formulations of pure water: the Bandura-Lvov equation with the
@@ -570,8 +580,12 @@ def debye_huckel_A(temperature_K: Any) -> Any:
     numpy.float64 or numpy.ndarray
         A [L^1/2 mol^-1/2].
     """
-    T = _pure_water_temperature(temperature_K)
-    eps_r = np.asarray(water_dielectric_constant(T))
+    return _out(_debye_huckel_A(_pure_water_temperature(temperature_K)))
+
+
+def _debye_huckel_A(T: np.ndarray) -> np.ndarray:
+    """Debye-Hückel A [L^1/2 mol^-1/2] at temperatures [K] already checked (no range checks)."""
+    eps_r = _malmberg_maryott(T)
     c = CODATA_2018
     e = c["elementary_charge_C"]
     eps0 = c["vacuum_permittivity_F_per_m"]
@@ -580,7 +594,7 @@ def debye_huckel_A(temperature_K: Any) -> Any:
     denom = eps0 * eps_r * kb * T
     bjerrum_term = e**2 / (8.0 * np.pi * denom)  # m
     kappa_term = np.sqrt(2000.0 * na * e**2 / denom)  # m^-1 per sqrt(mol/L)
-    return _out(bjerrum_term * kappa_term / np.log(10.0))
+    return bjerrum_term * kappa_term / np.log(10.0)
 
 
 def _charge(charge: Any) -> np.ndarray:
@@ -783,12 +797,8 @@ def hydronium_hydroxide_molar(
     oh = np.empty(p.shape, dtype=float)
     fresh = s == 0.0
     if np.any(fresh):
-        tf = T[fresh]
-        log_gamma = np.asarray(davies_log10_gamma(i[fresh], 1, tf))
-        rho = np.asarray(water_density_kg_m3(tf)) / 1000.0
-        pkw = np.asarray(pKw_pure_water(tf))
-        h[fresh] = 10.0 ** (-p[fresh] - log_gamma) * rho
-        oh[fresh] = 10.0 ** (p[fresh] - pkw - log_gamma) * rho
+        tf = _pure_water_temperature(T[fresh])
+        h[fresh], oh[fresh] = _fresh_water_h_oh(p[fresh], tf, i[fresh])
     sea = ~fresh
     if np.any(sea):
         ts, ss = T[sea], s[sea]
@@ -804,3 +814,29 @@ def hydronium_hydroxide_molar(
         else:
             h[sea] = h_total * rho
     return _out(h), _out(oh)
+
+
+def _fresh_water_h_oh(
+    pH: np.ndarray, temperature_K: np.ndarray, ionic_strength_M: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """[H+] and [OH-] [mol/L] of fresh water from checked, same-shape float arrays.
+
+    The fresh-water branch of :func:`hydronium_hydroxide_molar` without its
+    range checks: the caller guarantees finite pH in 0-14, temperatures in
+    273.15-373.15 K and ionic strengths in 0-0.5 mol/L. Where every ionic
+    strength is 0 (pure water) the Davies term, exactly 0 there, is not
+    evaluated.
+    """
+    rho = _kell_density(temperature_K) / 1000.0  # g/cm3, and kg/L of water per L
+    pkw = _bandura_lvov_pKw(rho, temperature_K, _BANDURA_LVOV["R11-07"])
+    if np.any(ionic_strength_M):
+        sqrt_i = np.sqrt(ionic_strength_M)
+        log_gamma = -_debye_huckel_A(temperature_K) * (
+            sqrt_i / (1.0 + sqrt_i) - 0.3 * ionic_strength_M
+        )
+        h = 10.0 ** (-pH - log_gamma) * rho
+        oh = 10.0 ** (pH - pkw - log_gamma) * rho
+    else:
+        h = 10.0 ** (-pH) * rho
+        oh = 10.0 ** (pH - pkw) * rho
+    return h, oh

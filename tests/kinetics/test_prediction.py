@@ -221,3 +221,58 @@ def test_bad_surface_and_montecarlo_level(surface):
         mc.interval(0.9)
     with pytest.raises(InputError, match="kind"):
         mc.interval(kind="tolerance")
+
+
+def _straightforward_delta(surface, T, pH, ionic, salinity, level):
+    """The delta-method prediction written out from the public pieces, one condition at a time."""
+    names = surface.parameter_names
+    est = dict(zip(names, surface.estimates))
+    cov = np.asarray(surface.covariance)
+    tq = stats.t.ppf(0.5 + level / 2.0, surface.dof)
+    out = []
+    for t, p, i, s in np.broadcast(T, pH, ionic, salinity):
+        h, oh = water.hydronium_hydroxide_molar(p, t, i, s)
+        conc = {"acid": float(h), "neutral": 1.0, "base": float(oh)}
+        terms = {
+            q: est[f"ln_k_ref_{q}"] - est[f"Ea_{q}_J_per_mol"] / R * (1 / t - 1 / TREF)
+            + math.log(conc[q])
+            for q in surface.pathways
+        }
+        k = sum(math.exp(v) for v in terms.values())
+        jac = []
+        for q in surface.pathways:
+            w = math.exp(terms[q]) / k
+            jac += [w, -w / R * (1 / t - 1 / TREF)]
+        se = math.sqrt(float(np.asarray(jac) @ cov @ np.asarray(jac)))
+        out.append((math.log(k), se, math.log(k) - tq * se, math.log(k) + tq * se))
+    return np.array(out)
+
+
+@pytest.mark.parametrize(
+    "T, pH, ionic, salinity",
+    [
+        (298.15, 7.5, 0.0, 0.0),  # one condition in pure water
+        (283.15, 3.0, 0.0, 0.0),  # one condition outside the measured pH range
+        (293.15, 8.1, 0.0, 35.0),  # seawater
+        ([278.15, 298.15, 318.15], [5.0, 7.0, 9.5], [0.0, 0.05, 0.4], 0.0),  # fresh, mixed I
+        ([275.0, 350.0], [6.0, 8.0], 0.0, [0.0, 20.0]),  # fresh next to brackish water
+    ],
+)
+@pytest.mark.parametrize("level", [0.95, 0.8])
+def test_delta_prediction_equals_straightforward_evaluation(surface, T, pH, ionic, salinity, level):
+    # Internal consistency (common practice, no source): the vectorised prediction, with its
+    # water chemistry evaluated once and its t quantile remembered, gives the numbers of the
+    # delta-method formulas of the module docstring evaluated condition by condition from
+    # kinetics.water and scipy.stats.t.
+    if np.any(np.asarray(salinity) > 0) and np.any(np.asarray(T) > 318.15):
+        with pytest.raises(InputError, match="temperature_K"):
+            predict(surface, T, pH, ionic_strength_M=ionic, salinity=salinity)
+        return
+    ref = _straightforward_delta(surface, T, pH, ionic, salinity, level)
+    for _ in range(2):  # a second call reuses the remembered quantile
+        pred = predict(surface, T, pH, ionic_strength_M=ionic, salinity=salinity, level=level)
+        assert_allclose(pred.ln_k.ravel(), ref[:, 0], rtol=1e-13, atol=0)
+        assert_allclose(pred.se_ln_k.ravel(), ref[:, 1], rtol=1e-12, atol=0)
+        assert_allclose(np.log(pred.k_ci_low_per_s).ravel(), ref[:, 2], rtol=1e-12, atol=0)
+        assert_allclose(np.log(pred.k_ci_high_per_s).ravel(), ref[:, 3], rtol=1e-12, atol=0)
+    assert_allclose(surface.ln_k(T, pH, ionic, salinity).ravel(), ref[:, 0], rtol=1e-13, atol=0)

@@ -366,3 +366,26 @@ def test_hydronium_hydroxide_broadcasts_over_conditions():
 def test_hydronium_hydroxide_rejects(kwargs, match):
     with pytest.raises(InputError, match=match):
         water.hydronium_hydroxide_molar(**kwargs)
+
+
+@pytest.mark.parametrize(
+    "pH, T, ionic",
+    [
+        (7.0, 298.15, 0.0),
+        (0.0, 273.15, 0.0),
+        (14.0, 373.15, 0.0),
+        ([4.0, 7.0, 9.0], [283.15, 303.15, 343.15], [0.0, 0.01, 0.5]),
+        ([6.5, 8.5], 293.15, 0.1),
+    ],
+)
+def test_fresh_water_concentrations_follow_their_formula(pH, T, ionic):
+    # Internal consistency (common practice, no source): [H+] = 10^(-pH - log10 gamma) rho/1000
+    # and [OH-] = 10^(pH - pKw - log10 gamma) rho/1000, composed from the public Davies,
+    # density and pKw functions (each checked against its published source above); the pure
+    # water shortcut (I = 0, where the Davies term is exactly 0) changes no digit.
+    h, oh = water.hydronium_hydroxide_molar(pH, T, ionic)
+    log_gamma = np.asarray(water.davies_log10_gamma(ionic, 1, T))
+    rho = np.asarray(water.water_density_kg_m3(T)) / 1000.0
+    pkw = np.asarray(water.pKw_pure_water(T))
+    assert_allclose(h, 10.0 ** (-np.asarray(pH) - log_gamma) * rho, rtol=1e-15, atol=0)
+    assert_allclose(oh, 10.0 ** (np.asarray(pH) - pkw - log_gamma) * rho, rtol=1e-15, atol=0)
