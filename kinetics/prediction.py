@@ -97,6 +97,8 @@ _LN2 = math.log(2.0)
 _LN10 = math.log(10.0)
 # ln of the largest rate bound reported (bounds are clipped to 1e-300..1e300 1/s).
 _LN_LIMIT = 690.0
+# Up to this many conditions, row-wise quadratic forms are summed on Python floats.
+_SMALL_ROWS = 4
 # Largest number of floats held at once by a Monte Carlo block.
 _MC_BLOCK_FLOATS = 4_000_000
 
@@ -346,7 +348,7 @@ def predict(
         jac[:, 1::2] = w / R
     cov = np.asarray(surface.covariance, dtype=float)
     se2 = _quadratic_rows(jac, cov)
-    se = np.sqrt(np.clip(se2, 0.0, None))
+    se = np.sqrt(np.maximum(se2, 0.0))
     rs = float(surface.residual_scale)
     dof = int(surface.dof)
 
@@ -386,8 +388,8 @@ def predict(
     extrap = np.zeros(T.size)
     outside = flags["temperature_outside_range"] | flags["pH_outside_range"]
     if outside.any():
-        Tc = np.clip(T[outside], t_lo, t_hi)
-        pc = np.clip(ph[outside], p_lo, p_hi)
+        Tc = np.minimum(np.maximum(T[outside], t_lo), t_hi)
+        pc = np.minimum(np.maximum(ph[outside], p_lo), p_hi)
         lnc_c = _clipped_ln_concentrations(
             T[outside], ph[outside], lnc[outside], Tc, pc, ionic[outside], sal[outside]
         )
@@ -397,7 +399,7 @@ def predict(
     k = np.exp(lnk)
     # interval bounds beyond 1e+-300 (only for nearly uncharacterised surfaces with
     # one or two degrees of freedom) are reported at that limit, never as inf or 0
-    bounds = (np.clip(v, -_LN_LIMIT, _LN_LIMIT) for v in (ci_lo, ci_hi, pi_lo, pi_hi))
+    bounds = (np.minimum(np.maximum(v, -_LN_LIMIT), _LN_LIMIT) for v in (ci_lo, ci_hi, pi_lo, pi_hi))
     ci_lo, ci_hi, pi_lo, pi_hi = bounds
     k_ci_lo, k_ci_hi = np.exp(ci_lo), np.exp(ci_hi)
     k_pi_lo, k_pi_hi = np.exp(pi_lo), np.exp(pi_hi)
@@ -474,6 +476,20 @@ def _quadratic_rows(jac: np.ndarray, cov: np.ndarray) -> np.ndarray:
     more than the arithmetic itself.
     """
     p = cov.shape[0]
+    if jac.shape[0] <= _SMALL_ROWS:
+        # a few rows: the same sums in the same order on Python floats (the same
+        # IEEE arithmetic, without one numpy call per term)
+        c = cov.tolist()
+        rows = []
+        for r in jac.tolist():
+            total = 0.0
+            for j in range(p):
+                acc = c[j][j] * r[j]
+                for k in range(j + 1, p):
+                    acc = acc + (2.0 * c[j][k]) * r[k]
+                total += r[j] * acc
+            rows.append(total)
+        return np.array(rows, dtype=float)
     out = np.zeros(jac.shape[0])
     for j in range(p):
         col = jac[:, j]
@@ -510,8 +526,8 @@ def _clipped_ln_concentrations(
         ti, si = ionic[idx], sal[idx]
         if np.all(ti == ti[0]) and np.all(si == si[0]):
             ends = np.unique(Tc[idx])
-            at7 = _ln_concentrations(ends, np.full(ends.size, 7.0), np.full(ends.size, ti[0]),
-                                     np.full(ends.size, si[0]))
+            medium = (float(ti[0]), float(si[0]))
+            at7 = np.array([_ln_concentrations_pH7(float(t), *medium) for t in ends])
             out[idx] = at7[np.searchsorted(ends, Tc[idx])]
             shift[idx] = _LN10 * (pc[idx] - 7.0)
         else:
@@ -520,6 +536,22 @@ def _clipped_ln_concentrations(
     out[:, 0] -= shift
     out[:, 2] += shift
     return out
+
+
+@functools.lru_cache(maxsize=1024)
+def _ln_concentrations_pH7(
+    temperature_K: float, ionic_strength_M: float, salinity: float
+) -> tuple[float, float, float]:
+    """ln [H+], 0, ln [OH-] at pH 7, remembered per temperature and medium.
+
+    Used at the ends of a surface's temperature range, which many predictions
+    share; elementwise, so the same numbers as an evaluation with other rows.
+    """
+    row = _ln_concentrations(
+        np.array([temperature_K]), np.array([7.0]), np.array([ionic_strength_M]),
+        np.array([salinity]),
+    )[0]
+    return tuple(row.tolist())
 
 
 def _monte_carlo(

@@ -276,3 +276,9 @@ def test_delta_prediction_equals_straightforward_evaluation(surface, T, pH, ioni
         assert_allclose(np.log(pred.k_ci_low_per_s).ravel(), ref[:, 2], rtol=1e-12, atol=0)
         assert_allclose(np.log(pred.k_ci_high_per_s).ravel(), ref[:, 3], rtol=1e-12, atol=0)
     assert_allclose(surface.ln_k(T, pH, ionic, salinity).ravel(), ref[:, 0], rtol=1e-13, atol=0)
+    # distance from the measured box: ln k at the condition clipped into the measured ranges
+    T_box = np.clip(T, *surface.temperature_range_K)
+    pH_box = np.clip(pH, *surface.pH_range)
+    box = _straightforward_delta(surface, T_box, pH_box, ionic, salinity, level)
+    assert_allclose(pred.extrapolation_ln_k.ravel(), np.abs(ref[:, 0] - box[:, 0]),
+                    rtol=1e-11, atol=1e-12)
