@@ -57,6 +57,7 @@ from kinetics.surface import (
     PATHWAYS,
     PH_LEVEL_TOLERANCE,
     TEMPERATURE_LEVEL_TOLERANCE_K,
+    eyring_ln_k,
 )
 from kinetics.surface import GAS_CONSTANT_J_PER_MOL_K as _R_SURFACE
 from kinetics.units import validate_pH, validate_temperature_K
@@ -134,7 +135,7 @@ _SECONDS_PER_DAY = 86400.0
 
 
 # ---------------------------------------------------------------------------------------
-# small helpers
+# small utilities
 # ---------------------------------------------------------------------------------------
 
 
@@ -489,9 +490,8 @@ class KineticsPrior:
             elif model == "eyring":
                 i_h, i_s = names.index(f"dH_{p}_J_per_mol"), names.index(f"dS_{p}_J_per_mol_K")
                 d_h, d_s = est[i_h], est[i_s]
-                kb_over_h = 1.380649e-23 / 6.62607015e-34  # CODATA 2018 exact [1/(K s)]
                 ea = d_h + r * t_ref
-                ln_k_ref = math.log(kb_over_h * t_ref) + d_s / r - d_h / (r * t_ref)
+                ln_k_ref = float(eyring_ln_k(d_h, d_s, t_ref))
                 sd_e = se[i_h]
                 # var(ln k_ref) of a linear combination of dH and dS
                 g = np.zeros(len(names))
