@@ -333,19 +333,12 @@ def predict(
 
     T, ph, ionic, sal, shape = _conditions(temperature_K, pH, ionic_strength_M, salinity)
     lnc = _ln_concentrations(T, ph, ionic, sal)
-    terms, _ = surface._terms_at(T, lnc, None)
+    terms = surface._terms_at(T, lnc)
     lnk = _logsumexp_rows(terms)
     w = np.exp(terms - lnk[:, None])
 
     # delta method: se^2 = J Sigma J^T, row by row
-    jac = np.empty((T.size, surface.n_params))
-    R = GAS_CONSTANT_J_PER_MOL_K
-    if surface.temperature_model == "arrhenius":
-        jac[:, 0::2] = w
-        jac[:, 1::2] = -w * ((1.0 / T - 1.0 / surface.reference_temperature_K) / R)[:, None]
-    else:
-        jac[:, 0::2] = -w / (R * T)[:, None]
-        jac[:, 1::2] = w / R
+    jac = surface._jacobian_at(T, w)
     cov = np.asarray(surface.covariance, dtype=float)
     se2 = _quadratic_rows(jac, cov)
     se = np.sqrt(np.maximum(se2, 0.0))
@@ -375,11 +368,12 @@ def predict(
             prior_share += w[:, j]
     flags["ea_from_prior"] = prior_share >= EA_PRIOR_FLAG_CONTRIBUTION
     hidden = np.zeros(T.size, dtype=bool)
-    for p, ln_kmax_ref in surface.hidden_pathway_ln_k_ref_max.items():
-        j = PATHWAYS.index(p)
-        from_ref = surface.hidden_pathway_Ea_J_per_mol / R * (
+    if surface.hidden_pathway_ln_k_ref_max:
+        from_ref = surface.hidden_pathway_Ea_J_per_mol / GAS_CONSTANT_J_PER_MOL_K * (
             1.0 / T - 1.0 / surface.reference_temperature_K
         )
+    for p, ln_kmax_ref in surface.hidden_pathway_ln_k_ref_max.items():
+        j = PATHWAYS.index(p)
         ln_hidden = ln_kmax_ref - from_ref + lnc[:, j]
         hidden |= ln_hidden - lnk > math.log(HIDDEN_PATHWAY_FLAG_RATIO) + 1e-9
     flags["uncharacterised_pathway_matters"] = hidden
@@ -393,7 +387,7 @@ def predict(
         lnc_c = _clipped_ln_concentrations(
             T[outside], ph[outside], lnc[outside], Tc, pc, ionic[outside], sal[outside]
         )
-        terms_c, _ = surface._terms_at(Tc, lnc_c, None)
+        terms_c = surface._terms_at(Tc, lnc_c)
         extrap[outside] = np.abs(lnk[outside] - _logsumexp_rows(terms_c))
 
     k = np.exp(lnk)

@@ -848,11 +848,9 @@ class SurfaceFit:
         pH: Any,
         ionic_strength_M: Any,
         salinity: Any,
-        parameters: Any,
-    ) -> tuple[np.ndarray, np.ndarray, np.ndarray, tuple[int, ...], bool]:
+    ) -> tuple[np.ndarray, np.ndarray, tuple[int, ...]]:
         T, ph, ionic, sal, shape = _conditions(temperature_K, pH, ionic_strength_M, salinity)
-        terms, many = self._terms_at(T, _ln_concentrations(T, ph, ionic, sal), parameters)
-        return terms, T, self.reference_temperature_K / T - 1.0, shape, many
+        return self._terms_at(T, _ln_concentrations(T, ph, ionic, sal)), T, shape
 
     def _check_parameters(self, parameters: Any) -> np.ndarray:
         """Parameter sets as a finite (n_draws, n_params) float array."""
@@ -905,34 +903,31 @@ class SurfaceFit:
             out.append(t)
         return out
 
-    def _terms_at(
-        self, T: np.ndarray, lnc_all: np.ndarray, parameters: Any
-    ) -> tuple[np.ndarray, bool]:
-        """ln of each pathway's term at validated, flattened conditions.
+    def _terms_at(self, T: np.ndarray, lnc_all: np.ndarray) -> np.ndarray:
+        """ln of each pathway's term at the estimates, shape (n, m).
 
-        ``lnc_all`` holds ln [H+], 0, ln [OH-] per condition, shape (n, 3).
-        Returns terms of shape (n, m), or (n_draws, m, n) with ``parameters``.
+        ``T`` and ``lnc_all`` (ln [H+], 0, ln [OH-] per condition, shape
+        (n, 3)) are validated, flattened conditions; parameter draws go
+        through :meth:`_draw_terms`.
         """
         lnc = lnc_all[:, self._pathway_index()]
         u = self.reference_temperature_K / T - 1.0
-        eyring = self.temperature_model == "eyring"
-        offset = np.log(T / self.reference_temperature_K) if eyring else 0.0
-        if parameters is None:
-            params = np.asarray(self.estimates, dtype=float)
-            many = False
+        a, e = self._to_internal(np.asarray(self.estimates, dtype=float))
+        terms = a[None, :] + lnc - u[:, None] * e[None, :]
+        if self.temperature_model == "eyring":
+            terms = terms + np.log(T / self.reference_temperature_K)[:, None]
+        return terms
+
+    def _jacobian_at(self, T: np.ndarray, w: np.ndarray) -> np.ndarray:
+        """d ln k / d parameters, shape (n, n_params), from the pathway fractions ``w`` (n, m)."""
+        jac = np.empty((T.size, self.n_params))
+        if self.temperature_model == "arrhenius":
+            jac[:, 0::2] = w
+            jac[:, 1::2] = -w * ((1.0 / T - 1.0 / self.reference_temperature_K) / _R)[:, None]
         else:
-            params = self._check_parameters(parameters)
-            many = True
-        a, e = self._to_internal(params)
-        if many:
-            # (n_draws, m, n_cond)
-            terms = a[:, :, None] + lnc.T[None, :, :] - e[:, :, None] * u[None, None, :]
-            terms = terms + offset
-        else:
-            terms = (a[None, :] + lnc - u[:, None] * e[None, :]) + (
-                offset[:, None] if self.temperature_model == "eyring" else 0.0
-            )
-        return terms, many
+            jac[:, 0::2] = -w / (_R * T)[:, None]
+            jac[:, 1::2] = w / _R
+        return jac
 
     def ln_k(
         self,
@@ -969,7 +964,7 @@ class SurfaceFit:
             T, ph, ionic, sal, _ = _conditions(temperature_K, pH, ionic_strength_M, salinity)
             lnc = _ln_concentrations(T, ph, ionic, sal)
             return _logsumexp_terms(self._draw_terms(T, lnc, params))
-        terms, _, _, shape, _ = self._terms(temperature_K, pH, ionic_strength_M, salinity, None)
+        terms, _, shape = self._terms(temperature_K, pH, ionic_strength_M, salinity)
         return _logsumexp(terms, axis=1).reshape(shape)
 
     def prepare_conditions(
@@ -1077,17 +1072,9 @@ class SurfaceFit:
         numpy.ndarray
             Shape (n_conditions, n_params), per unit of each parameter.
         """
-        terms, T, u, _, _ = self._terms(temperature_K, pH, ionic_strength_M, salinity, None)
+        terms, T, _ = self._terms(temperature_K, pH, ionic_strength_M, salinity)
         lnk = _logsumexp(terms, axis=1)
-        w = np.exp(terms - lnk[:, None])
-        jac = np.empty((T.size, self.n_params))
-        if self.temperature_model == "arrhenius":
-            jac[:, 0::2] = w
-            jac[:, 1::2] = -w * ((1.0 / T - 1.0 / self.reference_temperature_K) / _R)[:, None]
-        else:
-            jac[:, 0::2] = -w / (_R * T)[:, None]
-            jac[:, 1::2] = w / _R
-        return jac
+        return self._jacobian_at(T, np.exp(terms - lnk[:, None]))
 
     def contributions(
         self,
@@ -1119,7 +1106,7 @@ class SurfaceFit:
             terms_p = self._draw_terms(T, lnc, params)
             lnk = _logsumexp_terms(terms_p)
             return {p: np.exp(t - lnk) for p, t in zip(self.pathways, terms_p)}
-        terms, _, _, shape, _ = self._terms(temperature_K, pH, ionic_strength_M, salinity, None)
+        terms, _, shape = self._terms(temperature_K, pH, ionic_strength_M, salinity)
         lnk = _logsumexp(terms, axis=1)
         return {p: np.exp(terms[:, j] - lnk).reshape(shape) for j, p in enumerate(self.pathways)}
 
