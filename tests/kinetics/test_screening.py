@@ -32,6 +32,8 @@ def test_criteria_thresholds_and_sources():
     assert crit["reach_P_fresh"].threshold_d == 40.0
     assert crit["reach_P_marine"].threshold_d == 60.0
     assert crit["reach_vP_water"].threshold_d == 60.0
+    # 12 °C: the temperature at which ECHA Guidance on IR&CSA Chapter R.11 (PBT assessment)
+    # asks for water half-lives (from memory, as kinetics.screening states)
     assert crit["reach_P_fresh"].assessment_temperature_K == 285.15
     # Stockholm Convention Annex D 1(b)(i): half-life in water greater than two months
     # (checked against the Convention text); two months = 2/12 of 365.25 d (project choice)
