@@ -64,6 +64,14 @@ __all__ = [
 ]
 
 
+# --------------------------------------------------------------------------- pages
+def _page(session: Session, stmt: Any, order_by: Any, *, limit: int, offset: int) -> tuple[list[Any], int]:
+    """One page of ``stmt`` in ``order_by`` order and the number of rows matching in all."""
+    total = session.scalar(select(func.count()).select_from(stmt.subquery())) or 0
+    rows = session.scalars(stmt.order_by(order_by).limit(limit).offset(offset)).all()
+    return list(rows), int(total)
+
+
 # --------------------------------------------------------------------------- audit
 def record_audit(
     session: Session,
@@ -117,9 +125,7 @@ def list_audit_events(
         stmt = stmt.where(AuditEvent.entity == entity)
     if entity_id is not None:
         stmt = stmt.where(AuditEvent.entity_id == entity_id)
-    total = session.scalar(select(func.count()).select_from(stmt.subquery())) or 0
-    rows = session.scalars(stmt.order_by(AuditEvent.id).limit(limit).offset(offset)).all()
-    return list(rows), int(total)
+    return _page(session, stmt, AuditEvent.id, limit=limit, offset=offset)
 
 
 # --------------------------------------------------------------------------- substances
@@ -157,9 +163,7 @@ def list_substances(
     stmt = select(Substance)
     if name_contains:
         stmt = stmt.where(func.lower(Substance.name).contains(name_contains.lower()))
-    total = session.scalar(select(func.count()).select_from(stmt.subquery())) or 0
-    rows = session.scalars(stmt.order_by(Substance.id).limit(limit).offset(offset)).all()
-    return list(rows), int(total)
+    return _page(session, stmt, Substance.id, limit=limit, offset=offset)
 
 
 # --------------------------------------------------------------------------- studies
@@ -188,9 +192,7 @@ def list_studies(
     stmt = select(Study)
     if substance_id is not None:
         stmt = stmt.where(Study.substance_id == substance_id)
-    total = session.scalar(select(func.count()).select_from(stmt.subquery())) or 0
-    rows = session.scalars(stmt.order_by(Study.id).limit(limit).offset(offset)).all()
-    return list(rows), int(total)
+    return _page(session, stmt, Study.id, limit=limit, offset=offset)
 
 
 # --------------------------------------------------------------------------- runs
@@ -567,11 +569,8 @@ def list_runs(
         stmt = stmt.where(Run.pH >= pH_min)
     if pH_max is not None:
         stmt = stmt.where(Run.pH <= pH_max)
-    total = session.scalar(select(func.count()).select_from(stmt.subquery())) or 0
-    rows = session.scalars(
-        stmt.options(selectinload(Run.observations)).order_by(Run.id).limit(limit).offset(offset)
-    ).all()
-    return list(rows), int(total)
+    return _page(session, stmt.options(selectinload(Run.observations)), Run.id,
+                 limit=limit, offset=offset)
 
 
 def current_runs(session: Session, *, substance_id: int) -> list[Run]:
