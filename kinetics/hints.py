@@ -23,6 +23,7 @@ from typing import Any, Mapping
 
 from kinetics.caution import CAUTION_TEXT
 from kinetics.errors import InputError
+from kinetics.surface import GAS_CONSTANT_J_PER_MOL_K, PATHWAYS
 from kinetics.units import as_float_array
 
 __all__ = [
@@ -176,7 +177,7 @@ def _ea_from_surface(surface: Any) -> tuple[dict[str, float], tuple[str, ...], t
             out[p] = values[f"Ea_{p}_J_per_mol"]
         elif f"dH_{p}_J_per_mol" in values:
             # Eyring: Ea = dH + R T at the reference temperature (Laidler, Chemical Kinetics)
-            out[p] = values[f"dH_{p}_J_per_mol"] + 8.314462618 * t_ref
+            out[p] = values[f"dH_{p}_J_per_mol"] + GAS_CONSTANT_J_PER_MOL_K * t_ref
     return (out, tuple(getattr(surface, "pathways", ())),
             tuple(getattr(surface, "ea_from_prior", ()) or ()))
 
@@ -224,13 +225,13 @@ def class_hints(
         ea, path_set, prior = _ea_from_surface(surface)
     if ea_J_per_mol is not None:
         for p, v in ea_J_per_mol.items():
-            if p not in ("acid", "neutral", "base"):
-                raise InputError(f"unknown pathway {p!r}; valid: acid, neutral, base")
+            if p not in PATHWAYS:
+                raise InputError(f"unknown pathway {p!r}; valid: {', '.join(PATHWAYS)}")
             ea[p] = float(as_float_array(v, f"Ea of the {p} pathway"))
     if pathways is not None:
-        bad = [p for p in pathways if p not in ("acid", "neutral", "base")]
+        bad = [p for p in pathways if p not in PATHWAYS]
         if bad:
-            raise InputError(f"unknown pathway {bad[0]!r}; valid: acid, neutral, base")
+            raise InputError(f"unknown pathway {bad[0]!r}; valid: {', '.join(PATHWAYS)}")
         path_set = tuple(pathways)
     if not ea and not path_set:
         raise InputError("give a surface fit, ea_J_per_mol or pathways to compare")

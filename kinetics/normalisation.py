@@ -32,6 +32,7 @@ from scipy import stats
 
 from kinetics.caution import CAUTION_TEXT
 from kinetics.errors import DataError, InputError
+from kinetics.surface import EFSA_DEFAULT_EA_J_PER_MOL, GAS_CONSTANT_J_PER_MOL_K
 from kinetics.units import as_float_array, validate_pH, validate_temperature_K
 
 __all__ = [
@@ -47,12 +48,13 @@ __all__ = [
     "normalisation_factor",
 ]
 
-#: Molar gas constant [J/(mol K)], exact in the 2019 SI (CODATA 2018).
-GAS_CONSTANT_J_PER_MOL_K = 8.314462618
+# GAS_CONSTANT_J_PER_MOL_K (exact in the 2019 SI, CODATA 2018) is re-exported from
+# kinetics.surface, so that both modules use one value.
 #: EFSA (2008) default activation energy [J/mol] (EFSA Journal (2008) 622,
 #: "Opinion on a request from EFSA related to the default Q10 value used to
-#: describe the temperature effect on transformation rates of pesticides in soil").
-EFSA_2008_EA_J_PER_MOL = 65.4e3
+#: describe the temperature effect on transformation rates of pesticides in soil");
+#: the same value as :data:`kinetics.surface.EFSA_DEFAULT_EA_J_PER_MOL`.
+EFSA_2008_EA_J_PER_MOL = EFSA_DEFAULT_EA_J_PER_MOL
 #: ECHA Guidance Chapter R.16 (2016) exponential temperature factor [1/K].
 ECHA_R16_FACTOR_PER_K = 0.08
 #: Temperatures often asked for [K]: 12 °C (EU persistence criteria), 20 °C, 25 °C.
