@@ -130,6 +130,16 @@ def _temperature(temperature_K: Any, low: float, high: float, what: str) -> np.n
     return t
 
 
+def _broadcast_T_S(T: np.ndarray, S: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    try:
+        return tuple(np.broadcast_arrays(T, S))  # type: ignore[return-value]
+    except ValueError:
+        raise InputError(
+            f"temperature_K (shape {T.shape}) and salinity (shape {S.shape}) "
+            "cannot be broadcast together"
+        ) from None
+
+
 def _pure_water_temperature(temperature_K: Any) -> np.ndarray:
     return _temperature(
         temperature_K, LIQUID_WATER_MIN_K, LIQUID_WATER_MAX_K,
@@ -297,7 +307,7 @@ def pKw_pure_water(temperature_K: Any, formulation: str = "R11-07") -> Any:
     """
     coefficients = _bandura_lvov_coefficients(formulation)
     T = _pure_water_temperature(temperature_K)
-    rho = np.asarray(water_density_kg_m3(T)) / 1000.0  # g/cm3
+    rho = _kell_density(T) / 1000.0  # g/cm3
     return _out(_bandura_lvov_pKw(rho, T, coefficients))
 
 
@@ -358,7 +368,7 @@ def pKw_seawater(temperature_K: Any, salinity: Any) -> Any:
     """
     T = _temperature(temperature_K, SEAWATER_MIN_K, SEAWATER_MAX_K, "seawater correlations")
     S = _salinity(salinity)
-    T, S = np.broadcast_arrays(T, S)
+    T, S = _broadcast_T_S(T, S)
     return _out(-_millero_ln_kw(T, S) / np.log(10.0))
 
 
@@ -405,13 +415,7 @@ def pKw(temperature_K: Any, salinity: Any = 0.0, *, formulation: str = "R11-07")
     _bandura_lvov_coefficients(formulation)
     T = as_float_array(temperature_K, "temperature_K")
     S = _salinity(salinity)
-    try:
-        T, S = np.broadcast_arrays(T, S)
-    except ValueError:
-        raise InputError(
-            f"temperature_K (shape {T.shape}) and salinity (shape {S.shape}) "
-            "cannot be broadcast together"
-        ) from None
+    T, S = _broadcast_T_S(T, S)
     result = np.empty(T.shape, dtype=float)
     fresh = S == 0.0
     if np.any(fresh):
@@ -459,7 +463,7 @@ def seawater_density_kg_m3(temperature_K: Any, salinity: Any) -> Any:
     """
     T = _temperature(temperature_K, SEAWATER_MIN_K, SEAWATER_MAX_K, "seawater correlations")
     S = _salinity(salinity)
-    T, S = np.broadcast_arrays(T, S)
+    T, S = _broadcast_T_S(T, S)
     t = T - ZERO_CELSIUS_K
     rho_w = (
         999.842594
@@ -536,7 +540,7 @@ def bisulfate_dissociation_constant(temperature_K: Any, salinity: Any) -> Any:
     """
     T = _temperature(temperature_K, SEAWATER_MIN_K, SEAWATER_MAX_K, "seawater correlations")
     S = _salinity(salinity)
-    T, S = np.broadcast_arrays(T, S)
+    T, S = _broadcast_T_S(T, S)
     i = np.asarray(ionic_strength_from_salinity(S))
     ln_t = np.log(T)
     ln_ks = (

@@ -174,6 +174,16 @@ def test_seawater_outside_validity_is_rejected(temperature_K, salinity):
         water.pKw(temperature_K, salinity=salinity)
 
 
+@pytest.mark.parametrize(
+    "function",
+    [water.pKw, water.pKw_seawater, water.seawater_density_kg_m3,
+     water.bisulfate_dissociation_constant],
+)
+def test_seawater_functions_refuse_shapes_that_do_not_broadcast(function):
+    with pytest.raises(InputError, match="cannot be broadcast"):
+        function([290.0, 300.0], [1.0, 2.0, 3.0])
+
+
 def test_ionic_strength_from_salinity():
     # DOE (1994) handbook, chapter 5: I = 19.924 S / (1000 - 1.005 S);
     # 0.7228 mol/kg-H2O at S = 35 (formula evaluated by hand).
