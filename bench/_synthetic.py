@@ -8,7 +8,9 @@ from __future__ import annotations
 
 import numpy as np
 
-R_J_PER_MOL_K = 8.314462618  # CODATA 2018 molar gas constant
+from kinetics.surface import GAS_CONSTANT_J_PER_MOL_K as R_J_PER_MOL_K
+from kinetics.water import pKw
+
 T_REF_K = 298.15
 
 # Invented three-pathway parameters: ln k at 25 degC in SI units and Ea in J/mol.
@@ -16,19 +18,12 @@ TRUE_LN_K_REF = {"acid": np.log(2.0e-3), "neutral": np.log(3.0e-8), "base": np.l
 TRUE_EA_J_PER_MOL = {"acid": 70.0e3, "neutral": 85.0e3, "base": 60.0e3}
 
 
-def pkw_simple(temperature_K):
-    """Rough pKw(T) used only to generate synthetic data (the fitted code uses kinetics.water)."""
-    from kinetics.water import pKw
-
-    return pKw(temperature_K)
-
-
 def true_k_per_s(temperature_K, pH):
     """k_obs of the invented substance [1/s] (activities taken as concentrations)."""
     temperature_K = np.asarray(temperature_K, float)
     pH = np.asarray(pH, float)
     h = 10.0 ** (-pH)
-    oh = 10.0 ** (pH - pkw_simple(temperature_K))
+    oh = 10.0 ** (pH - pKw(temperature_K))  # pure-water pKw of kinetics.water
     inv = 1.0 / temperature_K - 1.0 / T_REF_K
     k = 0.0
     for p, conc in (("acid", h), ("neutral", 1.0), ("base", oh)):
