@@ -92,15 +92,20 @@ def _lost(fraction_lost: float) -> float:
     return float(-np.log1p(-fraction_lost))
 
 
+def _ols_slope(x: np.ndarray, y: np.ndarray) -> float:
+    """Ordinary least-squares slope of y on x."""
+    xm = x - x.sum() / x.size
+    return float(np.dot(xm, y) / np.dot(xm, xm))
+
+
 def _loglinear_rate(t: np.ndarray, y: np.ndarray) -> float | None:
     """Slope-based first-order rate from positive values, or None if not declining."""
     keep = y > 0
     tk = t[keep]
     if np.unique(tk).size < 2:
         return None
-    xm = tk - tk.mean()
     with np.errstate(over="ignore", under="ignore", invalid="ignore", divide="ignore"):
-        slope = float(np.dot(xm, np.log(y[keep])) / np.dot(xm, xm))
+        slope = _ols_slope(tk, np.log(y[keep]))
     return -slope if np.isfinite(slope) and slope < 0 else None
 
 

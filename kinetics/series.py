@@ -40,6 +40,7 @@ from kinetics import units
 from kinetics._series_models import (
     EXPONENTIAL_RISE,
     MODELS,
+    _ols_slope,
     natural_from_theta,
     natural_gradient,
 )
@@ -504,12 +505,6 @@ def _prepare(time: Any, concentration: Any, time_unit: str, n_parameters: int,
             f"per {time_unit} (mean {_fmt(m0)} at {_fmt(ut[0])} {time_unit}, {_fmt(m1)} at "
             f"{_fmt(ut[-1])} {time_unit}); a degradation model needs a declining series")
     return _Prepared(t * factor, c, group, int(ut.size), time_unit, factor, n_set, n_dropped)
-
-
-def _ols_slope(x: np.ndarray, y: np.ndarray) -> float:
-    """Ordinary least-squares slope of y on x."""
-    xm = x - x.sum() / x.size
-    return float(np.dot(xm, y) / np.dot(xm, xm))
 
 
 # ------------------------------------------------------------- the engine
