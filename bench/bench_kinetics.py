@@ -22,10 +22,14 @@ from _synthetic import T_REF_K, synthetic_runs  # noqa: E402
 
 import kinetics  # noqa: E402
 from kinetics import water  # noqa: E402
-from kinetics.surface import GAS_CONSTANT_J_PER_MOL_K, RateMeasurement, fit_surface  # noqa: E402
+from kinetics.surface import (  # noqa: E402
+    GAS_CONSTANT_J_PER_MOL_K,
+    PATHWAYS,
+    RateMeasurement,
+    fit_surface,
+)
 
 R = GAS_CONSTANT_J_PER_MOL_K
-PATHWAYS = ("acid", "neutral", "base")
 
 
 #: Clock of every figure: wall time by default; ``--clock cpu`` uses the process CPU time
