@@ -33,7 +33,6 @@ __all__ = [
     "ReportData",
     "run_view",
     "run_view_from_csv",
-    "fit_surface_for_runs",
     "default_conditions",
     "gather",
     "gather_from_csv",
@@ -329,43 +328,24 @@ def run_view_from_csv(run: Any, *, error_model: str = "constant") -> RunView:
     )
 
 
-def fit_surface_for_runs(views: Sequence[RunView], **options: Any) -> tuple[Any, str | None]:
-    """Fit the rate surface to the runs that have a rate constant.
+def default_conditions(field_temperature_K: float,
+                       pH_values: Sequence[float] = DEFAULT_FIELD_PH,
+                       salinity: float = 0.0) -> list[FieldCondition]:
+    """Field conditions at one temperature and several pH values (fresh water by default).
 
     Parameters
     ----------
-    views : sequence of RunView
-        Runs; those without a usable rate constant are left out.
-    **options
-        Passed to :func:`kinetics.surface.fit_surface` (``temperature_model``,
-        ``pathways``, ``ea_prior_J_per_mol``).
-
-    Returns
-    -------
-    (SurfaceFit or None, str or None)
-        The fit, or None and the reason it could not be made.
+    field_temperature_K : float
+        Water temperature [K].
+    pH_values : sequence of float
+        Field pH values, one condition each.
+    salinity : float
+        Practical salinity (≈ g/kg); 0 for fresh water.
     """
-    from kinetics.surface import RateMeasurement, fit_surface
-
-    try:
-        measurements = [
-            RateMeasurement(temperature_K=v.temperature_K, pH=v.pH, k_per_s=v.k_per_s,
-                            se_ln_k=v.se_ln_k if v.se_ln_k and math.isfinite(v.se_ln_k) else None,
-                            ionic_strength_M=v.ionic_strength_M, label=v.label)
-            for v in views if v.k_per_s
-        ]
-        if not measurements:
-            return None, "no run has a usable rate constant"
-        return fit_surface(measurements, **options), None
-    except KineticsError as exc:
-        return None, str(exc)
-
-
-def default_conditions(field_temperature_K: float,
-                       pH_values: Sequence[float] = DEFAULT_FIELD_PH) -> list[FieldCondition]:
-    """Field conditions at one temperature and several pH values (fresh water)."""
-    return [FieldCondition(f"{_temperature_label(field_temperature_K)}, pH {p:g}",
-                           float(field_temperature_K), float(p)) for p in pH_values]
+    return [FieldCondition(
+        f"{_temperature_label(field_temperature_K)}, pH {p:g}"
+        + (f", salinity {salinity:g}" if salinity else ""),
+        float(field_temperature_K), float(p), 0.0, float(salinity)) for p in pH_values]
 
 
 def runs_as_of(session: Any, substance_id: int, as_of: dt.datetime | None) -> list[Any]:
@@ -374,24 +354,13 @@ def runs_as_of(session: Any, substance_id: int, as_of: dt.datetime | None) -> li
     A version was current at ``as_of`` if it was stored at or before it and was not yet
     replaced or withdrawn (``valid_to`` empty or later).
     """
-    from sqlalchemy import or_, select
-    from sqlalchemy.orm import selectinload
-
     from service import crud
-    from service.models import Run
 
     if as_of is None:
         return crud.current_runs(session, substance_id=substance_id)
     if as_of.tzinfo is None:
         raise KineticsError(f"as_of {as_of.isoformat()} needs a time zone, e.g. ...Z for UTC")
-    stmt = (
-        select(Run)
-        .where(Run.substance_id == substance_id, Run.created_at <= as_of,
-               or_(Run.valid_to.is_(None), Run.valid_to > as_of))
-        .options(selectinload(Run.observations))
-        .order_by(Run.id)
-    )
-    return list(session.scalars(stmt).all())
+    return crud.runs_as_of(session, substance_id=substance_id, as_of=as_of)
 
 
 def data_version_of(substance_id: int, run_ids: Sequence[int]) -> str:
@@ -546,10 +515,7 @@ def gather(
     views = [run_view(r, study=study_text.get(r.study_id, ""), error_model=opts.error_model,
                       model=model_of.get(r.run_uid) or _series_model(r, opts.series_model))
              for r in fitted.runs]
-    conditions = [FieldCondition(
-        f"{_temperature_label(field_temperature_K)}, pH {p:g}"
-        + (f", salinity {salinity:g}" if salinity else ""),
-        float(field_temperature_K), float(p), 0.0, float(salinity)) for p in pH_values]
+    conditions = default_conditions(field_temperature_K, pH_values, salinity)
     return ReportData(
         substance={"id": substance.id, "name": substance.name, "cas_rn": substance.cas_rn,
                    "smiles": substance.smiles, "substance_class": substance.substance_class,
@@ -631,10 +597,7 @@ def gather_from_csv(
             "laboratory": r.laboratory, "test_guideline": r.test_guideline, "glp": r.glp,
             "reference": r.study_reference, "n_runs": 0})
         st["n_runs"] += 1
-    conditions = [FieldCondition(
-        f"{_temperature_label(field_temperature_K)}, pH {p:g}"
-        + (f", salinity {salinity:g}" if salinity else ""),
-        float(field_temperature_K), float(p), 0.0, float(salinity)) for p in pH_values]
+    conditions = default_conditions(field_temperature_K, pH_values, salinity)
     return ReportData(
         substance={"name": names[0], "notes": f"Runs read from {source}." if source else None},
         studies=list(studies.values()), runs=views, surface=surface, surface_error=error,
