@@ -619,13 +619,11 @@ def _conditions(
     bad = (T < units.LIQUID_WATER_MIN_K) | (T > units.LIQUID_WATER_MAX_K)
     if bad.any():
         i = int(np.argmax(bad))
-        hint = ""
         bad_t = float(T[i])
-        if 0.0 <= bad_t <= 100.0:
-            hint = f" (it looks like °C: {bad_t!r} °C is {bad_t + units.ZERO_CELSIUS_K!r} K)"
         raise InputError(
             f"temperature_K {bad_t!r} K at index {_index(i, shape)} is outside liquid water "
-            f"at 0.1 MPa ({units.LIQUID_WATER_MIN_K}-{units.LIQUID_WATER_MAX_K} K){hint}"
+            f"at 0.1 MPa ({units.LIQUID_WATER_MIN_K}-{units.LIQUID_WATER_MAX_K} K)"
+            f"{units._celsius_hint(bad_t)}"
         )
     bad = (ph < units.PH_MIN) | (ph > units.PH_MAX)
     if bad.any():

@@ -144,6 +144,19 @@ def _out(arr: np.ndarray) -> Any:
     return arr[()] if arr.ndim == 0 else arr
 
 
+def _first_bad(arr: np.ndarray, mask: np.ndarray) -> float:
+    """The first value of ``arr`` where ``mask`` is true (the value itself if 0-d)."""
+    return float(arr[mask].ravel()[0]) if arr.ndim else float(arr)
+
+
+def _celsius_hint(temperature_K: float) -> str:
+    """A note for a temperature in K that is probably a value in °C, else ""."""
+    if 0.0 <= temperature_K <= 100.0:
+        return (f" (it looks like °C: {temperature_K!r} °C is "
+                f"{temperature_K + ZERO_CELSIUS_K!r} K)")
+    return ""
+
+
 def _scaled(arr: np.ndarray, factor: float, name: str, divide: bool = False) -> np.ndarray:
     """Multiply (or divide) by a unit factor; overflow raises InputError, never inf."""
     with np.errstate(over="ignore", under="ignore", divide="ignore", invalid="ignore"):
@@ -298,7 +311,7 @@ def half_life_to_rate_per_s(half_life: Any, unit: str = "s") -> Any:
     factor = _time_factor(unit)
     t = as_float_array(half_life, "half-life")
     if np.any(t <= 0.0):
-        bad = float(t[t <= 0.0].ravel()[0]) if t.ndim else float(t)
+        bad = _first_bad(t, t <= 0.0)
         raise InputError(f"half-life must be > 0, got {bad!r} {unit}")
     with np.errstate(over="ignore", under="ignore"):
         k = np.asarray(np.log(2.0) / (t * factor), dtype=float)
@@ -336,7 +349,7 @@ def rate_per_s_to_half_life(k_per_s: Any, unit: str = "s") -> Any:
     factor = _time_factor(unit)
     k = as_float_array(k_per_s, "rate constant")
     if np.any(k <= 0.0):
-        bad = float(k[k <= 0.0].ravel()[0]) if k.ndim else float(k)
+        bad = _first_bad(k, k <= 0.0)
         raise InputError(f"rate constant must be > 0 1/s to have a half-life, got {bad!r}")
     with np.errstate(over="ignore", under="ignore"):
         t = np.asarray(np.log(2.0) / k / factor, dtype=float)
@@ -435,7 +448,7 @@ def celsius_to_kelvin(temperature_C: Any) -> Any:
     """
     t = as_float_array(temperature_C, "temperature")
     if np.any(t < -ZERO_CELSIUS_K):
-        bad = float(t[t < -ZERO_CELSIUS_K].ravel()[0]) if t.ndim else float(t)
+        bad = _first_bad(t, t < -ZERO_CELSIUS_K)
         raise InputError(f"temperature {bad!r} °C is below absolute zero (-273.15 °C)")
     return _out(t + ZERO_CELSIUS_K)
 
@@ -455,7 +468,7 @@ def kelvin_to_celsius(temperature_K: Any) -> Any:
     """
     t = as_float_array(temperature_K, "temperature")
     if np.any(t < 0.0):
-        bad = float(t[t < 0.0].ravel()[0]) if t.ndim else float(t)
+        bad = _first_bad(t, t < 0.0)
         raise InputError(f"temperature {bad!r} K is below absolute zero")
     return _out(t - ZERO_CELSIUS_K)
 
@@ -488,13 +501,11 @@ def validate_temperature_K(temperature_K: Any) -> Any:
     t = as_float_array(temperature_K, "temperature_K")
     bad_mask = (t < LIQUID_WATER_MIN_K) | (t > LIQUID_WATER_MAX_K)
     if np.any(bad_mask):
-        bad = float(t[bad_mask].ravel()[0]) if t.ndim else float(t)
-        hint = ""
-        if 0.0 <= bad <= 100.0:
-            hint = f" (it looks like °C: {bad!r} °C is {bad + ZERO_CELSIUS_K!r} K)"
+        bad = _first_bad(t, bad_mask)
         raise InputError(
             f"temperature_K {bad!r} K is outside the liquid-water range at 0.1 MPa, "
-            f"{LIQUID_WATER_MIN_K} K to {LIQUID_WATER_MAX_K} K (0 °C to 100 °C){hint}"
+            f"{LIQUID_WATER_MIN_K} K to {LIQUID_WATER_MAX_K} K (0 °C to 100 °C)"
+            f"{_celsius_hint(bad)}"
         )
     return _out(t)
 
@@ -520,6 +531,6 @@ def validate_pH(pH: Any) -> Any:
     p = as_float_array(pH, "pH")
     bad_mask = (p < PH_MIN) | (p > PH_MAX)
     if np.any(bad_mask):
-        bad = float(p[bad_mask].ravel()[0]) if p.ndim else float(p)
+        bad = _first_bad(p, bad_mask)
         raise InputError(f"pH {bad!r} is outside the accepted range {PH_MIN:g} to {PH_MAX:g}")
     return _out(p)

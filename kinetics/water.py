@@ -52,6 +52,9 @@ from kinetics.units import (
     LIQUID_WATER_MAX_K,
     LIQUID_WATER_MIN_K,
     ZERO_CELSIUS_K,
+    _celsius_hint,
+    _first_bad,
+    _out,
     as_float_array,
     validate_pH,
 )
@@ -105,27 +108,15 @@ SALINITY_MAX = 45.0
 DAVIES_MAX_IONIC_STRENGTH_M = 0.5
 
 
-def _out(arr: np.ndarray) -> Any:
-    arr = np.asarray(arr, dtype=float)
-    return arr[()] if arr.ndim == 0 else arr
-
-
-def _first_bad(arr: np.ndarray, mask: np.ndarray) -> float:
-    return float(arr[mask].ravel()[0]) if arr.ndim else float(arr)
-
-
 def _temperature(temperature_K: Any, low: float, high: float, what: str) -> np.ndarray:
     t = as_float_array(temperature_K, "temperature_K")
     mask = (t < low) | (t > high)
     if np.any(mask):
         bad = _first_bad(t, mask)
-        hint = ""
-        if 0.0 <= bad <= 100.0:
-            hint = f" (it looks like °C: {bad!r} °C is {bad + ZERO_CELSIUS_K!r} K)"
         raise InputError(
             f"temperature_K {bad!r} K is outside the range of the {what}, "
             f"{low} K to {high} K ({low - ZERO_CELSIUS_K:g} °C to "
-            f"{high - ZERO_CELSIUS_K:g} °C){hint}"
+            f"{high - ZERO_CELSIUS_K:g} °C){_celsius_hint(bad)}"
         )
     return t
 
