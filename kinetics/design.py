@@ -51,6 +51,7 @@ from scipy import stats
 
 from kinetics.caution import CAUTION_TEXT
 from kinetics.errors import DataError, InputError, KineticsError
+from kinetics.series import ERROR_MODELS as _SERIES_ERROR_MODELS
 from kinetics.surface import (
     DEFAULT_EA_PRIOR_SD_J_PER_MOL,
     EFSA_DEFAULT_EA_J_PER_MOL,
@@ -90,8 +91,8 @@ __all__ = [
 
 #: Pathways of the rate surface (those of :data:`kinetics.surface.PATHWAYS`).
 DESIGN_PATHWAYS = PATHWAYS
-#: Error models of a concentration series, as in :func:`kinetics.series.fit_series`.
-ERROR_MODELS = ("constant", "proportional")
+#: Error models of a concentration series: :data:`kinetics.series.ERROR_MODELS`.
+ERROR_MODELS = _SERIES_ERROR_MODELS
 #: Design criteria: "local" at the prior guess, or "prior_median" (median over prior draws).
 CRITERIA = ("local", "prior_median")
 #: Sampling of the naive comparison design.
