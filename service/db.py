@@ -16,15 +16,10 @@ from sqlalchemy import Engine, create_engine, event
 from sqlalchemy.engine import make_url
 from sqlalchemy.orm import Session, sessionmaker
 
-__all__ = ["make_engine", "make_session_factory", "session_scope", "is_sqlite", "WRITE_OPTION"]
+__all__ = ["make_engine", "make_session_factory", "session_scope", "WRITE_OPTION"]
 
 #: execution option that marks a connection as the start of a write transaction
 WRITE_OPTION = "fieldrate_write"
-
-
-def is_sqlite(url: str) -> bool:
-    """Whether a SQLAlchemy URL points at SQLite."""
-    return make_url(url).get_backend_name() == "sqlite"
 
 
 def make_engine(url: str, *, busy_timeout_ms: int = 30_000) -> Engine:

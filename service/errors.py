@@ -45,7 +45,6 @@ __all__ = [
     "Conflict",
     "TooLarge",
     "ItemErrors",
-    "Unavailable",
     "install_error_handlers",
     "kinetics_error_body",
     "ErrorItem",
@@ -111,11 +110,6 @@ class Conflict(ServiceError):
 class TooLarge(ServiceError):
     status_code = 413
     code = "too_large"
-
-
-class Unavailable(ServiceError):
-    status_code = 503
-    code = "unavailable"
 
 
 class ItemErrors(ServiceError):

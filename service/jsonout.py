@@ -55,10 +55,6 @@ def _tokens(a: np.ndarray) -> list[bytes]:
     return text[1:-1].split(b",") if a.size else []
 
 
-def _json_list(a: np.ndarray) -> bytes:
-    return orjson.dumps(np.ascontiguousarray(a, dtype=np.float64), option=orjson.OPT_SERIALIZE_NUMPY)
-
-
 def _open_object(header: dict[str, Any]) -> bytes:
     text = json.dumps(header, allow_nan=False, ensure_ascii=False)
     return (text[:-1] + ("," if header else "")).encode()

@@ -43,10 +43,7 @@ __all__ = [
     "ApiKey",
     "IdempotencyRecord",
     "AuditEvent",
-    "RUN_STATUSES",
 ]
-
-RUN_STATUSES = ("current", "superseded", "withdrawn")
 
 NAMING_CONVENTION = {
     "ix": "ix_%(column_0_label)s",

@@ -178,6 +178,12 @@ class StudyPublic(Public):
 
 
 # --------------------------------------------------------------------------- runs
+def _check_time_unit(value: str) -> str:
+    """A time unit :func:`kinetics.units.time_to_s` knows (else its UnitError lists them)."""
+    units.time_to_s(0.0, value)
+    return value
+
+
 def _check_series_model(value: Optional[str]) -> Optional[str]:
     if value is None:
         return None
@@ -207,11 +213,7 @@ class SeriesIn(Strict):
     _canonical_unit: str = PrivateAttr()
     _loq_canonical: Optional[float] = PrivateAttr(default=None)
 
-    @field_validator("time_unit")
-    @classmethod
-    def _time_unit(cls, v: str) -> str:
-        units.time_to_s(0.0, v)
-        return v
+    _time_unit = field_validator("time_unit")(_check_time_unit)
 
     @field_validator("concentration_unit")
     @classmethod
@@ -301,11 +303,7 @@ class RateIn(Strict):
         units.rate_to_per_s(1.0, v)
         return v
 
-    @field_validator("dt50_unit")
-    @classmethod
-    def _dt50_unit(cls, v: str) -> str:
-        units.time_to_s(0.0, v)
-        return v
+    _dt50_unit = field_validator("dt50_unit")(_check_time_unit)
 
     @model_validator(mode="after")
     def _convert(self) -> "RateIn":
