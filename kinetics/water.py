@@ -131,6 +131,12 @@ def _broadcast_T_S(T: np.ndarray, S: np.ndarray) -> tuple[np.ndarray, np.ndarray
         ) from None
 
 
+def _seawater_T_S(temperature_K: Any, salinity: Any) -> tuple[np.ndarray, np.ndarray]:
+    """Checked, broadcast temperatures [K] and salinities for the seawater correlations."""
+    T = _temperature(temperature_K, SEAWATER_MIN_K, SEAWATER_MAX_K, "seawater correlations")
+    return _broadcast_T_S(T, _salinity(salinity))
+
+
 def _pure_water_temperature(temperature_K: Any) -> np.ndarray:
     return _temperature(
         temperature_K, LIQUID_WATER_MIN_K, LIQUID_WATER_MAX_K,
@@ -357,9 +363,7 @@ def pKw_seawater(temperature_K: Any, salinity: Any) -> Any:
     numpy.float64 or numpy.ndarray
         :math:`\\mathrm{p}K_w^* = -\\log_{10} K_w^*`.
     """
-    T = _temperature(temperature_K, SEAWATER_MIN_K, SEAWATER_MAX_K, "seawater correlations")
-    S = _salinity(salinity)
-    T, S = _broadcast_T_S(T, S)
+    T, S = _seawater_T_S(temperature_K, salinity)
     return _out(-_millero_ln_kw(T, S) / np.log(10.0))
 
 
@@ -452,9 +456,12 @@ def seawater_density_kg_m3(temperature_K: Any, salinity: Any) -> Any:
     numpy.float64 or numpy.ndarray
         Density [kg/m³].
     """
-    T = _temperature(temperature_K, SEAWATER_MIN_K, SEAWATER_MAX_K, "seawater correlations")
-    S = _salinity(salinity)
-    T, S = _broadcast_T_S(T, S)
+    T, S = _seawater_T_S(temperature_K, salinity)
+    return _out(_millero_poisson_density(T, S))
+
+
+def _millero_poisson_density(T: np.ndarray, S: np.ndarray) -> np.ndarray:
+    """Seawater density [kg/m³] at checked, same-shape temperatures [K] and salinities."""
     t = T - ZERO_CELSIUS_K
     rho_w = (
         999.842594
@@ -467,7 +474,7 @@ def seawater_density_kg_m3(temperature_K: Any, salinity: Any) -> Any:
     a = 8.24493e-1 + t * (-4.0899e-3 + t * (7.6438e-5 + t * (-8.2467e-7 + t * 5.3875e-9)))
     b = -5.72466e-3 + t * (1.0227e-4 + t * (-1.6546e-6))
     c = 4.8314e-4
-    return _out(rho_w + a * S + b * S**1.5 + c * S**2)
+    return rho_w + a * S + b * S**1.5 + c * S**2
 
 
 def total_sulfate_mol_per_kg(salinity: Any) -> Any:
@@ -490,8 +497,12 @@ def total_sulfate_mol_per_kg(salinity: Any) -> Any:
     numpy.float64 or numpy.ndarray
         Total sulfate [mol/kg-solution].
     """
-    s = _salinity(salinity)
-    return _out(0.14 / 96.062 * s / 1.80655)
+    return _out(_morris_riley_sulfate(_salinity(salinity)))
+
+
+def _morris_riley_sulfate(S: np.ndarray) -> np.ndarray:
+    """Total sulfate [mol/kg-solution] at checked salinities."""
+    return 0.14 / 96.062 * S / 1.80655
 
 
 def bisulfate_dissociation_constant(temperature_K: Any, salinity: Any) -> Any:
@@ -529,10 +540,13 @@ def bisulfate_dissociation_constant(temperature_K: Any, salinity: Any) -> Any:
     numpy.float64 or numpy.ndarray
         :math:`K_S` [mol/kg-solution].
     """
-    T = _temperature(temperature_K, SEAWATER_MIN_K, SEAWATER_MAX_K, "seawater correlations")
-    S = _salinity(salinity)
-    T, S = _broadcast_T_S(T, S)
-    i = np.asarray(ionic_strength_from_salinity(S))
+    T, S = _seawater_T_S(temperature_K, salinity)
+    return _out(_dickson_bisulfate_K(T, S))
+
+
+def _dickson_bisulfate_K(T: np.ndarray, S: np.ndarray) -> np.ndarray:
+    """K_S [mol/kg-solution] at checked, same-shape temperatures [K] and salinities."""
+    i = _seawater_ionic_strength(S)
     ln_t = np.log(T)
     ln_ks = (
         -4276.1 / T + 141.328 - 23.093 * ln_t
@@ -542,7 +556,7 @@ def bisulfate_dissociation_constant(temperature_K: Any, salinity: Any) -> Any:
         + 1776.0 / T * i**2
         + np.log(1.0 - 0.001005 * S)
     )
-    return _out(np.exp(ln_ks))
+    return np.exp(ln_ks)
 
 
 def debye_huckel_A(temperature_K: Any) -> Any:
@@ -679,8 +693,12 @@ def ionic_strength_from_salinity(salinity: Any) -> Any:
     numpy.float64 or numpy.ndarray
         Ionic strength [mol/kg H2O].
     """
-    s = _salinity(salinity)
-    return _out(19.924 * s / (1000.0 - 1.005 * s))
+    return _out(_seawater_ionic_strength(_salinity(salinity)))
+
+
+def _seawater_ionic_strength(S: np.ndarray) -> np.ndarray:
+    """Ionic strength [mol/kg H2O] at checked salinities."""
+    return 19.924 * S / (1000.0 - 1.005 * S)
 
 
 def hydronium_hydroxide_molar(
@@ -796,15 +814,14 @@ def hydronium_hydroxide_molar(
         h[fresh], oh[fresh] = _fresh_water_h_oh(p[fresh], tf, i[fresh])
     sea = ~fresh
     if np.any(sea):
-        ts, ss = T[sea], s[sea]
-        rho = np.asarray(seawater_density_kg_m3(ts, ss)) / 1000.0
-        pkw = np.asarray(pKw_seawater(ts, ss))
+        ts = _temperature(T[sea], SEAWATER_MIN_K, SEAWATER_MAX_K, "seawater correlations")
+        ss = s[sea]
+        rho = _millero_poisson_density(ts, ss) / 1000.0
+        pkw = -_millero_ln_kw(ts, ss) / np.log(10.0)
         h_total = 10.0 ** (-p[sea])
         oh[sea] = 10.0 ** (p[sea] - pkw) * rho
         if seawater_h_scale == "free":
-            ratio = np.asarray(total_sulfate_mol_per_kg(ss)) / np.asarray(
-                bisulfate_dissociation_constant(ts, ss)
-            )
+            ratio = _morris_riley_sulfate(ss) / _dickson_bisulfate_K(ts, ss)
             h[sea] = h_total / (1.0 + ratio) * rho
         else:
             h[sea] = h_total * rho
