@@ -665,8 +665,13 @@ def davies_log10_gamma(ionic_strength_M: Any, charge: Any = 1, temperature_K: An
             "ionic_strength_M, charge and temperature_K cannot be broadcast together "
             f"(shapes {np.shape(i)}, {np.shape(z)}, {np.shape(a)})"
         ) from None
-    sqrt_i = np.sqrt(i)
-    return _out(-a * z**2 * (sqrt_i / (1.0 + sqrt_i) - 0.3 * i))
+    return _out(-a * z**2 * _davies_term(i))
+
+
+def _davies_term(ionic_strength_M: np.ndarray) -> np.ndarray:
+    """sqrt(I) / (1 + sqrt(I)) - 0.3 I of the Davies equation, at checked ionic strengths."""
+    sqrt_i = np.sqrt(ionic_strength_M)
+    return sqrt_i / (1.0 + sqrt_i) - 0.3 * ionic_strength_M
 
 
 def ionic_strength_from_salinity(salinity: Any) -> Any:
@@ -842,10 +847,7 @@ def _fresh_water_h_oh(
     rho = _kell_density(temperature_K) / 1000.0  # g/cm3, and kg/L of water per L
     pkw = _bandura_lvov_pKw(rho, temperature_K, _BANDURA_LVOV["R11-07"])
     if np.any(ionic_strength_M):
-        sqrt_i = np.sqrt(ionic_strength_M)
-        log_gamma = -_debye_huckel_A(temperature_K) * (
-            sqrt_i / (1.0 + sqrt_i) - 0.3 * ionic_strength_M
-        )
+        log_gamma = -_debye_huckel_A(temperature_K) * _davies_term(ionic_strength_M)
         h = 10.0 ** (-pH - log_gamma) * rho
         oh = 10.0 ** (pH - pkw - log_gamma) * rho
     else:
