@@ -17,6 +17,7 @@ from typing import Any, Optional, Sequence
 
 import numpy as np
 
+from kinetics import units
 from kinetics.caution import CAUTION_TEXT
 from kinetics.errors import DataError, FitError, KineticsError
 from kinetics.series import fit_series
@@ -89,7 +90,7 @@ class FitResult:
 
 
 def _run_label(t_K: float, pH: float, uid: Optional[str], version: Optional[int], index: Optional[int]) -> str:
-    where = f"{t_K - 273.15:.1f} °C, pH {pH:.2f}"
+    where = f"{units.kelvin_to_celsius(t_K):.1f} °C, pH {pH:.2f}"
     if uid is not None:
         return f"run {uid} v{version} ({where})"
     return f"runs[{index}] ({where})"

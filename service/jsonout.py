@@ -18,6 +18,8 @@ from typing import Any
 import numpy as np
 import orjson
 
+from kinetics import units
+
 __all__ = ["ROW_FLOAT_FIELDS", "FLAG_NAMES", "prediction_arrays", "prediction_chunks", "CHUNK_ROWS"]
 
 CHUNK_ROWS = 5000
@@ -43,7 +45,7 @@ def prediction_arrays(pred: Any) -> dict[str, np.ndarray]:
     cols = {}
     for name in ROW_FLOAT_FIELDS:
         if name == "temperature_C":
-            cols[name] = np.asarray(pred.temperature_K, dtype=float).ravel() - 273.15
+            cols[name] = units.kelvin_to_celsius(np.asarray(pred.temperature_K, dtype=float).ravel())
         else:
             cols[name] = np.asarray(getattr(pred, name), dtype=float).ravel()
     return cols

@@ -92,6 +92,7 @@ def _fit(args: argparse.Namespace):
 
 
 def _fit_cmd(args: argparse.Namespace) -> int:
+    from kinetics import units
     from kinetics.caution import CAUTION_TEXT
     from service.fitting import model_flags, model_payload
 
@@ -106,7 +107,7 @@ def _fit_cmd(args: argparse.Namespace) -> int:
     for run, d in zip(runs, result.runs):
         dt50 = d.get("dt50_s")
         rows.append([
-            run.replicate_label, _num(run.temperature_K - 273.15), _num(run.pH),
+            run.replicate_label, _num(units.kelvin_to_celsius(run.temperature_K)), _num(run.pH),
             d.get("series_model") or "reported",
             _num(None if d.get("k_per_s") is None else d["k_per_s"] * _SECONDS_PER_DAY),
             _num(None if dt50 is None else dt50 / _SECONDS_PER_DAY),

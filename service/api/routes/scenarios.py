@@ -341,6 +341,7 @@ def _model_summary(surface: SurfaceFit) -> dict[str, Any]:
 def _scenario_payload(scenario: Scenario, res: ScenarioResult, report_times_d: list[float],
                       extra: dict[str, Any]) -> dict[str, Any]:
     t_d = res.time_s / DAY_S
+    temperature_C = units.kelvin_to_celsius(res.temperature_K)
     summary = []
     for t in sorted(set(report_times_d)):
         i = int(np.argmin(np.abs(t_d - t)))
@@ -351,7 +352,7 @@ def _scenario_payload(scenario: Scenario, res: ScenarioResult, report_times_d: l
             "fraction_ci_high": None if res.fraction_ci_high is None else float(res.fraction_ci_high[i]),
             "fraction_pi_low": None if res.fraction_pi_low is None else float(res.fraction_pi_low[i]),
             "fraction_pi_high": None if res.fraction_pi_high is None else float(res.fraction_pi_high[i]),
-            "temperature_C": float(res.temperature_K[i] - 273.15),
+            "temperature_C": float(temperature_C[i]),
             "pH": float(res.pH[i]),
         })
     return {
@@ -437,7 +438,7 @@ def _study_payload(check: StudyCheck, extra: dict[str, Any]) -> dict[str, Any]:
         ],
         "unstable_pH": list(check.unstable_pH),
         "temperatures_by_pH": [
-            {"pH": ph, "temperatures_C": [t - 273.15 for t in ts]}
+            {"pH": ph, "temperatures_C": units.kelvin_to_celsius(ts).tolist()}
             for ph, ts in check.temperatures_by_pH.items()
         ],
         "claims": [
