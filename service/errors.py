@@ -51,7 +51,14 @@ __all__ = [
     "ErrorBody",
     "ERROR_RESPONSES",
     "json_error_media_types",
+    "UNAVAILABLE_BODY",
 ]
+
+#: the 503 body, also sent by the ASGI middlewares (:func:`service.security.send_unavailable`)
+UNAVAILABLE_BODY = {
+    "error": "unavailable",
+    "detail": "the database is busy or unreachable; nothing was stored - retry shortly",
+}
 
 log = logging.getLogger("fieldrate.service")
 
@@ -293,9 +300,6 @@ def install_error_handlers(app: FastAPI) -> None:
         log.warning("database unavailable: %s", exc.orig)
         return JSONResponse(
             status_code=503,
-            content={
-                "error": "unavailable",
-                "detail": "the database is busy or unreachable; nothing was stored - retry shortly",
-            },
+            content=UNAVAILABLE_BODY,
             headers={"Retry-After": "1"},
         )

@@ -50,7 +50,7 @@ from fastapi.security import APIKeyHeader, HTTPAuthorizationCredentials, HTTPBea
 from sqlalchemy import event, select
 from sqlalchemy.orm import Session
 
-from service.errors import Conflict, NotFound, ServiceError
+from service.errors import UNAVAILABLE_BODY, Conflict, NotFound, ServiceError
 from service.models import ApiKey, utcnow
 
 __all__ = [
@@ -464,10 +464,7 @@ async def send_unavailable(send) -> None:
     """Answer 503 (database busy or unreachable) from an ASGI middleware."""
     import json
 
-    body = json.dumps({
-        "error": "unavailable",
-        "detail": "the database is busy or unreachable; nothing was stored - retry shortly",
-    }).encode()
+    body = json.dumps(UNAVAILABLE_BODY).encode()
     await send({"type": "http.response.start", "status": 503, "headers": [
         (b"content-type", b"application/json"), (b"content-length", str(len(body)).encode()),
         (b"retry-after", b"1"),
