@@ -29,6 +29,8 @@ __all__ = [
     "run_input_from_model",
     "run_input_from_payload",
     "compute_fit",
+    "check_posted_runs",
+    "stored_surface",
     "options_key",
     "model_payload",
     "CHI2_FLAG_PERCENT",
@@ -273,6 +275,36 @@ def excluded_runs(runs: Sequence[dict[str, Any]]) -> list[dict[str, Any]]:
          "reason": d.get("exclusion_reason")}
         for d in runs if d.get("status") == "excluded"
     ]
+
+
+def check_posted_runs(runs: Sequence[Any], *, max_runs: int, max_points: int) -> None:
+    """Refuse (413) more runs, or a longer series, than one request may send for a fit.
+
+    Raises
+    ------
+    service.errors.TooLarge
+        More than ``max_runs`` runs, or a series with more than ``max_points`` points.
+    """
+    from service.errors import TooLarge
+
+    if len(runs) > max_runs:
+        raise TooLarge(f"{len(runs)} runs were sent; at most {max_runs} are accepted")
+    for i, run in enumerate(runs):
+        if run.series is not None and len(run.series.time) > max_points:
+            raise TooLarge(
+                f"runs[{i}] has {len(run.series.time)} points; at most "
+                f"{max_points} are accepted per series",
+                loc=["body", "runs", i, "series", "time"],
+            )
+
+
+def stored_surface(surface: SurfaceFit) -> SurfaceFit:
+    """``surface`` after the JSON round trip of a stored fit.
+
+    A fit of posted runs goes through it so that it gives the same numbers, to the last
+    digit, as the stored fit of the same runs.
+    """
+    return SurfaceFit.from_dict(json.loads(json.dumps(surface.to_dict())))
 
 
 def compute_fit(runs: Sequence[RunInput], **options: Any) -> FitResult:

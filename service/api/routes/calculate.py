@@ -9,18 +9,18 @@ from fastapi import APIRouter, Depends, Request
 from fastapi.responses import Response, StreamingResponse
 
 from kinetics.caution import CAUTION_TEXT
-from kinetics.surface import SurfaceFit
 from service.api.examples import openapi_examples
 from service.api.fastjson import FastJSONRoute
 from service.conditions import condition_arrays
 from service.deps import Principal, require_scope
-from service.errors import TooLarge
 from service.fitting import (
     FitResult,
+    check_posted_runs,
     compute_fit,
     excluded_runs,
     model_payload,
     run_input_from_payload,
+    stored_surface,
 )
 from service.jsonout import prediction_chunks
 from service.predicting import prediction_header, run_predictions
@@ -43,17 +43,8 @@ def calculate(
     """The same fit and predictions as for a stored substance, computed from the runs in the
     request. Nothing is stored."""
     settings = request.app.state.settings
-    if len(body.runs) > settings.max_runs_per_batch:
-        raise TooLarge(
-            f"{len(body.runs)} runs were sent; at most {settings.max_runs_per_batch} are accepted"
-        )
-    for i, run in enumerate(body.runs):
-        if run.series is not None and len(run.series.time) > settings.max_points_per_series:
-            raise TooLarge(
-                f"runs[{i}] has {len(run.series.time)} points; at most "
-                f"{settings.max_points_per_series} are accepted per series",
-                loc=["body", "runs", i, "series", "time"],
-            )
+    check_posted_runs(body.runs, max_runs=settings.max_runs_per_batch,
+                      max_points=settings.max_points_per_series)
     arrays = None
     if body.conditions is not None or body.columns is not None:
         arrays = condition_arrays(
@@ -65,7 +56,7 @@ def calculate(
     )
     # the same JSON round trip as a stored fit, so both paths give identical numbers
     fit = FitResult(
-        surface=SurfaceFit.from_dict(json.loads(json.dumps(fit.surface.to_dict()))),
+        surface=stored_surface(fit.surface),
         runs=json.loads(fit.diagnostics_json()),
     )
     options = body.fit_options.model_dump(mode="json")

@@ -51,7 +51,7 @@ from service import crud
 from service.api.examples import openapi_examples
 from service.deps import Principal, ReadSession, require_scope
 from service.errors import NotFound, TooLarge
-from service.fitting import compute_fit, run_input_from_payload
+from service.fitting import check_posted_runs, compute_fit, run_input_from_payload, stored_surface
 from service.modelstore import load_model
 from service.schemas import FitOptions, RunData, Strict
 
@@ -408,21 +408,12 @@ def _scenario_payload(scenario: Scenario, res: ScenarioResult, report_times_d: l
 
 def _fit_posted_runs(request: Request, runs: list[RunData], options: FitOptions) -> SurfaceFit:
     settings = request.app.state.settings
-    if len(runs) > settings.max_runs_per_batch:
-        raise TooLarge(
-            f"{len(runs)} runs were sent; at most {settings.max_runs_per_batch} are accepted"
-        )
-    for i, run in enumerate(runs):
-        if run.series is not None and len(run.series.time) > settings.max_points_per_series:
-            raise TooLarge(
-                f"runs[{i}] has {len(run.series.time)} points; at most "
-                f"{settings.max_points_per_series} are accepted per series",
-                loc=["body", "runs", i, "series", "time"],
-            )
+    check_posted_runs(runs, max_runs=settings.max_runs_per_batch,
+                      max_points=settings.max_points_per_series)
     fit = compute_fit([run_input_from_payload(r, i) for i, r in enumerate(runs)],
                       **options.kinetics_kwargs())
     # the same JSON round trip as a stored fit, so both paths give identical numbers
-    return SurfaceFit.from_dict(json.loads(json.dumps(fit.surface.to_dict())))
+    return stored_surface(fit.surface)
 
 
 def _study_payload(check: StudyCheck, extra: dict[str, Any]) -> dict[str, Any]:
