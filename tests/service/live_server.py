@@ -11,6 +11,7 @@ import signal
 import socket
 import subprocess
 import sys
+import threading
 import time
 from pathlib import Path
 
@@ -23,6 +24,32 @@ def free_port() -> int:
     with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
         s.bind(("127.0.0.1", 0))
         return int(s.getsockname()[1])
+
+
+class ThreadedUvicorn:
+    """A uvicorn server for an app object on a free loopback port, in a thread of this test."""
+
+    def __init__(self, app):
+        import uvicorn
+
+        self.port = free_port()
+        self.base_url = f"http://127.0.0.1:{self.port}"
+        self.server = uvicorn.Server(uvicorn.Config(app, host="127.0.0.1", port=self.port,
+                                                    log_level="warning"))
+        self.thread = threading.Thread(target=self.server.run, daemon=True)
+
+    def __enter__(self) -> "ThreadedUvicorn":
+        self.thread.start()
+        deadline = time.monotonic() + 60.0
+        while not self.server.started:
+            if not self.thread.is_alive() or time.monotonic() > deadline:
+                raise RuntimeError("uvicorn did not start")
+            time.sleep(0.05)
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.server.should_exit = True
+        self.thread.join(timeout=60.0)
 
 
 class LiveServer:

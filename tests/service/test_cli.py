@@ -14,6 +14,8 @@ from service.cli import COMMAND_MODULES, build_parser, main
 from service.db import make_engine
 from service.migrate import current_revision, head_revision
 
+from live_server import ThreadedUvicorn
+
 TEMPLATE = Path(__file__).resolve().parents[2] / "openapi_examples" / "runs_template.csv"
 
 
@@ -259,46 +261,13 @@ def test_unknown_command_exits():
 
 
 # ------------------------------------------------------------------ through a service
-class _Uvicorn:
-    """A real uvicorn server for ``app`` on a free loopback port, in a thread of this test."""
-
-    def __init__(self, app):
-        import socket
-        import threading
-
-        import uvicorn
-
-        with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
-            s.bind(("127.0.0.1", 0))
-            self.port = int(s.getsockname()[1])
-        self.base_url = f"http://127.0.0.1:{self.port}"
-        self.server = uvicorn.Server(uvicorn.Config(app, host="127.0.0.1", port=self.port,
-                                                    log_level="warning"))
-        self.thread = threading.Thread(target=self.server.run, daemon=True)
-
-    def __enter__(self) -> "_Uvicorn":
-        import time
-
-        self.thread.start()
-        deadline = time.monotonic() + 60.0
-        while not self.server.started:
-            if not self.thread.is_alive() or time.monotonic() > deadline:
-                raise RuntimeError("uvicorn did not start")
-            time.sleep(0.05)
-        return self
-
-    def __exit__(self, *exc) -> None:
-        self.server.should_exit = True
-        self.thread.join(timeout=60.0)
-
-
 def test_import_and_report_through_a_running_service(capsys, tmp_path, monkeypatch):
     from service.config import Settings
     from service.main import create_app
     from service.security import issue_key
 
     app = create_app(Settings(database_url=f"sqlite:///{tmp_path / 'remote.db'}"))
-    with _Uvicorn(app) as server:
+    with ThreadedUvicorn(app) as server:
         key = issue_key(app.state.session_factory, label="cli remote test", scopes="admin",
                         actor="test setup")[1]
         rc, _, err = run(capsys, "import-csv", str(TEMPLATE), "--url", server.base_url)

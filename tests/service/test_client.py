@@ -3,9 +3,6 @@
 from __future__ import annotations
 
 import asyncio
-import socket
-import threading
-import time
 from pathlib import Path
 
 import httpx
@@ -19,6 +16,8 @@ from service.main import create_app
 from service.migrate import upgrade_head
 from service.schemas import RunPublic, SubstancePublic
 from service.security import issue_key
+
+from live_server import ThreadedUvicorn, free_port
 
 TEMPLATE = Path(__file__).resolve().parents[2] / "openapi_examples" / "runs_template.csv"
 INVENTED = "invented client test data"
@@ -202,14 +201,8 @@ def test_validation_detail_lists_the_problems(asgi_app):
     assert any("pH" in item["msg"] for item in info.value.detail)
 
 
-def _free_port() -> int:
-    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as s:
-        s.bind(("127.0.0.1", 0))
-        return int(s.getsockname()[1])
-
-
 def test_unreachable_service(tmp_path):
-    c = fc.Client(f"http://127.0.0.1:{_free_port()}", retries=1, backoff_s=0.0, timeout=2.0)
+    c = fc.Client(f"http://127.0.0.1:{free_port()}", retries=1, backoff_s=0.0, timeout=2.0)
     with pytest.raises(fc.ServiceUnreachable, match="after 2 attempt"):
         c.health()
     c.close()
@@ -220,37 +213,11 @@ def test_bad_retry_settings_are_refused():
         fc.Client(retries=-1)
 
 
-class _Uvicorn:
-    """A real uvicorn server for ``app`` on a free loopback port, in a thread of this test."""
-
-    def __init__(self, app):
-        import uvicorn
-
-        self.port = _free_port()
-        self.base_url = f"http://127.0.0.1:{self.port}"
-        self.server = uvicorn.Server(uvicorn.Config(app, host="127.0.0.1", port=self.port,
-                                                    log_level="warning"))
-        self.thread = threading.Thread(target=self.server.run, daemon=True)
-
-    def __enter__(self) -> "_Uvicorn":
-        self.thread.start()
-        deadline = time.monotonic() + 60.0
-        while not self.server.started:
-            if not self.thread.is_alive() or time.monotonic() > deadline:
-                raise RuntimeError("uvicorn did not start")
-            time.sleep(0.05)
-        return self
-
-    def __exit__(self, *exc) -> None:
-        self.server.should_exit = True
-        self.thread.join(timeout=60.0)
-
-
 @pytest.fixture
 def live(tmp_path):
     url = f"sqlite:///{tmp_path / 'live.db'}"
     app = create_app(Settings(database_url=url))  # startup runs the migrations
-    with _Uvicorn(app) as server:
+    with ThreadedUvicorn(app) as server:
         yield server, app
     app.state.engine.dispose()
 
