@@ -121,23 +121,23 @@ def condition_arrays(conditions: Any, columns: Any, *, max_conditions: int) -> C
     bad_T = ~both_or_none & ((T < units.LIQUID_WATER_MIN_K) | (T > units.LIQUID_WATER_MAX_K))
     problems += _problems(
         bad_T & has_C, loc("temperature_C"),
-        lambda i: f"condition {i}: temperature_C {t_C[i]!r} °C is not liquid water at 0.1 MPa (0-100 °C)",
+        lambda i: f"condition {i}: temperature_C {float(t_C[i])!r} °C is not liquid water at 0.1 MPa (0-100 °C)",
         "value_error",
     )
     problems += _problems(
         bad_T & has_K, loc("temperature_K"),
-        lambda i: f"condition {i}: temperature_K {t_K[i]!r} K is not liquid water at 0.1 MPa "
+        lambda i: f"condition {i}: temperature_K {float(t_K[i])!r} K is not liquid water at 0.1 MPa "
         f"({units.LIQUID_WATER_MIN_K}-{units.LIQUID_WATER_MAX_K} K)",
         "value_error",
     )
     bad_pH = (ph < units.PH_MIN) | (ph > units.PH_MAX)
     problems += _problems(
-        bad_pH, loc("pH"), lambda i: f"condition {i}: pH {ph[i]!r} is outside 0 to 14", "value_error"
+        bad_pH, loc("pH"), lambda i: f"condition {i}: pH {float(ph[i])!r} is outside 0 to 14", "value_error"
     )
     for name, arr in (("ionic_strength_M", ionic), ("salinity", sal)):
         neg = arr < 0
         problems += _problems(
-            neg, loc(name), lambda i, a=arr, nm=name: f"condition {i}: {nm} {a[i]!r} is negative",
+            neg, loc(name), lambda i, a=arr, nm=name: f"condition {i}: {nm} {float(a[i])!r} is negative",
             "value_error",
         )
     if problems:
