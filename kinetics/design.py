@@ -60,6 +60,7 @@ from kinetics.surface import (
     TEMPERATURE_LEVEL_TOLERANCE_K,
     eyring_ln_k,
 )
+from kinetics.surface import _MIN_CONTRIBUTION, _logsumexp as _surface_logsumexp
 from kinetics.surface import GAS_CONSTANT_J_PER_MOL_K as _R_SURFACE
 from kinetics.units import validate_pH, validate_temperature_K
 
@@ -120,9 +121,8 @@ _END_FRACTION_REMAINING = 0.1
 # studies and the surface fit with a fixed pathway set fails (same reasoning and value as
 # for a run, common practice, no source).
 _MAX_PATHWAY_SE_LN_K = 0.3
-# A pathway carrying less than this share of k_obs in every run cannot be fitted (the
-# identifiability rule of kinetics.surface.fit_surface).
-_MIN_CONTRIBUTION = 1e-3
+# A pathway carrying less than _MIN_CONTRIBUTION of k_obs in every run cannot be fitted
+# (the identifiability rule of kinetics.surface.fit_surface, imported from there).
 # A simulated run whose fitted ln k has a standard error above this is reported as "no
 # measurable decline" and left out of the surface fit, as a laboratory would report it
 # (common practice, no source).
@@ -132,7 +132,7 @@ _PRELIM_TEMPERATURE_K = 323.15
 _PRELIM_DURATION_S = 5.0 * 86400.0
 _PRELIM_PH = (4.0, 7.0, 9.0)
 _PRELIM_MAX_LOSS = 0.10
-_SECONDS_PER_DAY = 86400.0
+from kinetics.units import SECONDS_PER_DAY as _SECONDS_PER_DAY  # noqa: E402
 
 
 # ---------------------------------------------------------------------------------------
@@ -546,8 +546,8 @@ class KineticsPrior:
 
 
 def _logsumexp(a: np.ndarray) -> np.ndarray:
-    m = np.max(a, axis=-1)
-    return m + np.log(np.sum(np.exp(a - m[..., None]), axis=-1))
+    """ln of the sum of exp along the last axis (the surface's own helper)."""
+    return _surface_logsumexp(a, axis=-1)
 
 
 @dataclass(frozen=True)

@@ -45,6 +45,7 @@ import numpy as np
 from kinetics.caution import CAUTION_TEXT
 from kinetics.errors import DataError, InputError
 from kinetics.units import (
+    SECONDS_PER_DAY,
     as_float_array,
     celsius_to_kelvin,
     time_to_s,
@@ -75,7 +76,7 @@ __all__ = [
 ]
 
 #: One day [s].
-DAY_S = 86400.0
+DAY_S = SECONDS_PER_DAY
 #: The calendar year used by periodic components: exactly 365 days [s].
 YEAR_S = 365.0 * DAY_S
 #: The quantities a scenario can describe (names carry their units).

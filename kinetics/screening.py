@@ -27,7 +27,7 @@ import numpy as np
 from kinetics.caution import CAUTION_TEXT
 from kinetics.errors import InputError
 from kinetics.normalisation import NORMALISATION_METHODS, NormalisedDT50, normalise_dt50
-from kinetics.units import as_float_array, validate_pH, validate_temperature_K
+from kinetics.units import SECONDS_PER_DAY, as_float_array, validate_pH, validate_temperature_K
 
 __all__ = [
     "DAY_S",
@@ -47,7 +47,7 @@ __all__ = [
     "check_study",
 ]
 
-DAY_S = 86400.0
+DAY_S = SECONDS_PER_DAY
 #: Water types a half-life can be screened for.
 WATER_TYPES = ("fresh", "estuarine", "marine")
 

@@ -50,7 +50,9 @@ __all__ = [
 #: Time units accepted everywhere a time unit is asked for.
 TIME_UNITS: tuple[str, ...] = ("s", "min", "h", "d")
 
-_SECONDS_PER: dict[str, float] = {"s": 1.0, "min": 60.0, "h": 3600.0, "d": 86400.0}
+#: Seconds in one day [s/d]; the one definition every module uses.
+SECONDS_PER_DAY: float = 86400.0
+_SECONDS_PER: dict[str, float] = {"s": 1.0, "min": 60.0, "h": 3600.0, "d": SECONDS_PER_DAY}
 
 #: First-order rate-constant units (reciprocal time).
 RATE_UNITS: tuple[str, ...] = ("1/s", "1/min", "1/h", "1/d")

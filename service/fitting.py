@@ -56,7 +56,7 @@ UPPER_BOUND_LEVEL = 0.95
 #: its initial concentration over its duration (common practice, no source)
 DETECTABLE_LOSS_FRACTION = 0.10
 
-_SECONDS_PER_DAY = 86400.0
+from kinetics.units import SECONDS_PER_DAY as _SECONDS_PER_DAY  # noqa: E402
 
 
 @dataclass(frozen=True)

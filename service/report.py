@@ -54,7 +54,7 @@ DEFAULT_FIELD_PH = (5.0, 6.0, 7.0, 8.0, 9.0)
 #: unit of each pathway's rate constant
 PATHWAY_UNITS = {"acid": "L/(mol·s)", "neutral": "1/s", "base": "L/(mol·s)"}
 
-_SECONDS_PER_DAY = 86400.0
+from kinetics.units import SECONDS_PER_DAY as _SECONDS_PER_DAY  # noqa: E402
 
 
 # ------------------------------------------------------------------ inputs

@@ -12,7 +12,7 @@ from typing import Any
 
 from service.commands.clitools import CommandError, format_table, guarded
 
-_SECONDS_PER_DAY = 86400.0
+from kinetics.units import SECONDS_PER_DAY as _SECONDS_PER_DAY  # noqa: E402
 
 _EPILOG_FIT = """\
 example:
